@@ -1,0 +1,94 @@
+//! The one place that turns typed bodies into CBOR bytes and back.
+//!
+//! Bodies are plain structs (no `HashMap`, no `serde(flatten)`), so each value has exactly one
+//! encoding. [`decode_exact`] decodes, re-encodes and rejects input whose bytes differ, so a
+//! non-canonical or padded body can never pass as a valid record. The CBOR library (serde_cbor,
+//! archived upstream) is used nowhere else, so it can be replaced without touching stored bytes.
+
+use serde::de::DeserializeOwned;
+use serde::Serialize;
+
+/// Why a value could not be encoded or decoded.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct CodecError(pub String);
+
+impl std::fmt::Display for CodecError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+impl std::error::Error for CodecError {}
+
+/// Encodes a value as CBOR (definite lengths, struct fields in declaration order).
+pub fn encode<T: Serialize>(value: &T) -> Result<Vec<u8>, CodecError> {
+    serde_cbor::to_vec(value).map_err(|e| CodecError(e.to_string()))
+}
+
+/// Decodes CBOR and insists that re-encoding the value yields the very same bytes.
+pub fn decode_exact<T: Serialize + DeserializeOwned>(bytes: &[u8]) -> Result<T, CodecError> {
+    let value: T = serde_cbor::from_slice(bytes).map_err(|e| CodecError(e.to_string()))?;
+    let again = encode(&value)?;
+    if again != bytes {
+        return Err(CodecError(format!(
+            "bytes are not in the one encoding of this record ({} bytes stored, {} when re-encoded)",
+            bytes.len(),
+            again.len()
+        )));
+    }
+    Ok(value)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use serde::Deserialize;
+
+    // RFC 8949 Appendix A, examples of encoded data items.
+    #[test]
+    fn encodes_rfc_8949_appendix_a_examples() {
+        assert_eq!(encode(&0u32).unwrap(), [0x00]);
+        assert_eq!(encode(&24u32).unwrap(), [0x18, 0x18]);
+        assert_eq!(encode(&-1i32).unwrap(), [0x20]);
+        assert_eq!(encode(&"a").unwrap(), [0x61, 0x61]);
+        assert_eq!(encode(&vec![1u8, 2, 3]).unwrap(), [0x83, 0x01, 0x02, 0x03]);
+    }
+
+    #[derive(Serialize, Deserialize, Debug, PartialEq)]
+    struct Sample {
+        name: String,
+        count: u32,
+    }
+
+    #[test]
+    fn decode_of_encode_is_identity() {
+        let s = Sample {
+            name: "tare".into(),
+            count: 3,
+        };
+        let bytes = encode(&s).unwrap();
+        assert_eq!(decode_exact::<Sample>(&bytes).unwrap(), s);
+    }
+
+    #[test]
+    fn rejects_non_canonical_integer_encoding() {
+        let mut bytes = encode(&Sample {
+            name: "x".into(),
+            count: 3,
+        })
+        .unwrap();
+        // Replace the final one-byte integer 3 (0x03) by the two-byte form 0x18 0x03,
+        // which decodes to the same value (RFC 8949 3.1) but is not the preferred encoding.
+        assert_eq!(bytes.pop(), Some(0x03));
+        bytes.extend([0x18, 0x03]);
+        let err = decode_exact::<Sample>(&bytes).unwrap_err();
+        assert!(err.0.contains("not in the one encoding"), "{err}");
+    }
+
+    #[test]
+    fn rejects_trailing_bytes() {
+        let mut bytes = encode(&7u32).unwrap();
+        bytes.push(0x00);
+        assert!(decode_exact::<u32>(&bytes).is_err());
+    }
+}

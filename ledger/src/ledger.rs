@@ -1,0 +1,261 @@
+//! The ledger as callers use it: create, open, append signed entries, read, replay, checkpoint.
+//!
+//! Ties storage, the registry, kind rules and the clock together so that every append is judged
+//! by exactly the rules replay will later apply: an entry the registry would flag is refused
+//! before it is written, inside the same write transaction that reads the head.
+
+use crate::checkpoint::Checkpoint;
+use crate::clock::Clock;
+use crate::entry::Draft;
+use crate::error::Result;
+use crate::kinds::REGISTRY_KINDS;
+use crate::records::{Enrolment, OpenLedger, Record};
+use crate::registry::Registry;
+use crate::replay::{replay, IntegrityReport, ReplayOptions};
+use crate::store::{EntryFilter, Head, Store};
+use crate::{Entry, EntryHash, KindRules, LedgerError, Role, Signer};
+use std::path::Path;
+use std::sync::Arc;
+
+pub use crate::store::OpenMode;
+
+/// An open ledger.
+pub struct Ledger {
+    store: Store,
+    rules: KindRules,
+    clock: Arc<dyn Clock>,
+    registry: Registry,
+}
+
+impl Ledger {
+    /// Creates a ledger at `path` and writes its opening entry, which enrols the signer as the
+    /// first QA person. Leaves no file behind if anything fails.
+    pub fn create(
+        path: &Path,
+        lab_name: &str,
+        founder_name: &str,
+        founder: &Signer,
+        rules: KindRules,
+        clock: Arc<dyn Clock>,
+    ) -> Result<(Ledger, Entry)> {
+        let mut ledger_id = [0u8; 16];
+        getrandom::getrandom(&mut ledger_id).map_err(|e| LedgerError::Io {
+            path: path.into(),
+            source: std::io::Error::other(e),
+        })?;
+        let opening = OpenLedger {
+            ledger_id,
+            lab_name: lab_name.trim().to_string(),
+            founder: Enrolment {
+                person: founder.person().to_string(),
+                name: founder_name.trim().to_string(),
+                role: Role::Qa,
+                public_key: founder.public_key(),
+            },
+        };
+        let store = Store::create(path)?;
+        let mut ledger = Ledger {
+            store,
+            rules,
+            clock,
+            registry: Registry::new(),
+        };
+        match ledger.append_record(&opening, founder) {
+            Ok(entry) => Ok((ledger, entry)),
+            Err(e) => {
+                drop(ledger);
+                remove_ledger_files(path);
+                Err(e)
+            }
+        }
+    }
+
+    /// Opens an existing ledger.
+    pub fn open(
+        path: &Path,
+        mode: OpenMode,
+        rules: KindRules,
+        clock: Arc<dyn Clock>,
+    ) -> Result<Ledger> {
+        let store = Store::open(path, mode)?;
+        Ok(Ledger {
+            store,
+            rules,
+            clock,
+            registry: Registry::new(),
+        })
+    }
+
+    /// Read access to the stored entries.
+    pub fn store(&self) -> &Store {
+        &self.store
+    }
+
+    /// The kind rules this ledger is judged by.
+    pub fn rules(&self) -> &KindRules {
+        &self.rules
+    }
+
+    /// The last entry, if any.
+    pub fn head(&self) -> Result<Option<Head>> {
+        self.store.head()
+    }
+
+    /// One entry.
+    pub fn entry(&self, seq: u64) -> Result<Entry> {
+        self.store
+            .entry(seq)?
+            .ok_or(LedgerError::NoSuchEntry { seq })
+    }
+
+    /// Entries matching a filter, oldest first.
+    pub fn find(&self, filter: &EntryFilter, limit: usize) -> Result<Vec<Entry>> {
+        self.store.find(filter, limit)
+    }
+
+    /// The registry as of the current head.
+    pub fn registry(&mut self) -> Result<&Registry> {
+        let newer = self
+            .store
+            .entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
+        apply_stored_registry_entries(&mut self.registry, &newer)?;
+        Ok(&self.registry)
+    }
+
+    /// Appends a typed record signed by `signer`, who is its author.
+    pub fn append_record<R: Record>(&mut self, record: &R, signer: &Signer) -> Result<Entry> {
+        let draft = Draft::of_record(signer.person(), record)?;
+        self.append(draft, Some(signer))
+    }
+
+    /// Appends a draft, signed by `signer` when given (the signer must be the author).
+    ///
+    /// Everything happens in one `BEGIN IMMEDIATE` transaction: read the head, bring the
+    /// registry up to date, judge authority, resolve references, hash, sign, insert, commit.
+    pub fn append(&mut self, draft: Draft, signer: Option<&Signer>) -> Result<Entry> {
+        draft.check()?;
+        if let Some(signer) = signer {
+            if signer.person() != draft.author {
+                return Err(LedgerError::Refused {
+                    reason: format!(
+                        "the key belongs to {} but the entry is authored by {}",
+                        signer.person(),
+                        draft.author
+                    ),
+                });
+            }
+        }
+        let rule = self.rules.get(&draft.kind);
+        let tx = self.store.begin_append()?;
+        let newer = tx.entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
+        apply_stored_registry_entries(&mut self.registry, &newer)?;
+        let head = tx.head()?;
+        let (seq, prev_hash) = head.map_or((1, EntryHash::ZERO), |h| (h.seq + 1, h.hash));
+        let record_time = self.clock.now();
+        if let Some(head) = head {
+            if record_time < head.record_time {
+                return Err(LedgerError::ClockBehind {
+                    head_time: head.record_time,
+                    now: record_time,
+                });
+            }
+        }
+        let signer_key = signer.map(Signer::public_key);
+        let issues =
+            self.registry
+                .authority_issues(&draft.author, &draft.kind, signer_key.as_ref(), rule);
+        if !issues.is_empty() {
+            let reason = issues.iter().map(|i| i.to_string()).collect::<Vec<_>>();
+            return Err(LedgerError::Refused {
+                reason: reason.join("; "),
+            });
+        }
+        let change = self
+            .registry
+            .check_change(seq, &draft.author, &draft.kind, signer_key.as_ref(), &draft.body)
+            .map_err(|reason| LedgerError::Refused { reason })?;
+        for reference in &draft.references {
+            if tx.seq_of_hash(reference)?.is_none() {
+                return Err(LedgerError::UnknownReference { hash: *reference });
+            }
+        }
+        let mut entry = Entry {
+            seq,
+            prev_hash,
+            record_time,
+            author: draft.author,
+            kind: draft.kind,
+            references: draft.references,
+            body: draft.body,
+            signer: signer_key,
+            signature: None,
+            hash: EntryHash::ZERO,
+        };
+        entry.hash = entry.compute_hash();
+        entry.signature = signer.map(|s| s.sign_entry(&entry.hash));
+        tx.insert(&entry)?;
+        tx.commit()?;
+        if let Some(change) = change {
+            self.registry.apply(seq, record_time, change);
+        }
+        Ok(entry)
+    }
+
+    /// Replays the whole ledger and reports every integrity problem.
+    pub fn replay(&self, options: &ReplayOptions) -> Result<IntegrityReport> {
+        replay(&self.store, &self.rules, options)
+    }
+
+    /// Signs a checkpoint of the current head.
+    pub fn checkpoint(&mut self, signer: &Signer) -> Result<Checkpoint> {
+        let head = self.head()?.ok_or(LedgerError::Empty)?;
+        let registry = self.registry()?;
+        let ledger_id = registry.ledger_id().ok_or(LedgerError::Empty)?;
+        if registry.owner_of(&signer.public_key()) != Some(signer.person()) {
+            return Err(LedgerError::Refused {
+                reason: format!("{} is not enrolled with this key", signer.person()),
+            });
+        }
+        Ok(Checkpoint::sign(
+            ledger_id,
+            head.seq,
+            head.hash,
+            self.clock.now(),
+            signer,
+        ))
+    }
+}
+
+/// Applies registry entries already in the ledger (judged when they were appended; replay
+/// re-judges them with their signatures). A stored entry that no longer makes sense means the
+/// file was altered, so appending stops until the ledger is verified.
+fn apply_stored_registry_entries(registry: &mut Registry, entries: &[Entry]) -> Result<()> {
+    for entry in entries {
+        let change = registry
+            .check_change(
+                entry.seq,
+                &entry.author,
+                &entry.kind,
+                entry.signer.as_ref(),
+                &entry.body,
+            )
+            .map_err(|reason| LedgerError::Refused {
+                reason: format!(
+                    "registry entry {} is not valid ({reason}); the ledger may have been altered",
+                    entry.seq
+                ),
+            })?;
+        if let Some(change) = change {
+            registry.apply(entry.seq, entry.record_time, change);
+        }
+    }
+    Ok(())
+}
+
+fn remove_ledger_files(path: &Path) {
+    for suffix in ["", "-wal", "-shm", "-journal"] {
+        let mut name = path.as_os_str().to_owned();
+        name.push(suffix);
+        let _ = std::fs::remove_file(name);
+    }
+}

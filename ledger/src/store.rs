@@ -1,0 +1,437 @@
+//! SQLite storage of entries: schema, pragmas, guards, atomic appends and streaming reads.
+//!
+//! Owns every SQL statement of the project. One append is one `BEGIN IMMEDIATE` transaction in
+//! WAL mode with `synchronous=FULL`; triggers refuse UPDATE and DELETE and any insert whose
+//! sequence number is not the next one (which also stops `INSERT OR REPLACE`). Reads stream row
+//! by row so memory does not grow with the ledger. The triggers are a guard only: the chain is
+//! what makes tampering visible.
+
+use crate::error::{storage, Result};
+use crate::{Entry, EntryHash, LedgerError, PublicKey, Timestamp};
+use rusqlite::{params, Connection, OpenFlags, OptionalExtension, Row, TransactionBehavior};
+use std::path::{Path, PathBuf};
+use std::time::Duration;
+
+/// `PRAGMA application_id` of an assize ledger ("ASZ1").
+pub const APPLICATION_ID: i32 = 0x4153_5A31;
+/// Schema version this build writes and reads.
+pub const SCHEMA_VERSION: i64 = 1;
+/// How long a writer waits for another process's append to finish.
+const BUSY_TIMEOUT: Duration = Duration::from_secs(60);
+
+const SCHEMA: &str = "
+CREATE TABLE entries (
+    seq         INTEGER PRIMARY KEY,
+    hash        BLOB    NOT NULL,
+    prev_hash   BLOB    NOT NULL,
+    record_time INTEGER NOT NULL,
+    author      TEXT    NOT NULL,
+    kind        TEXT    NOT NULL,
+    refs        BLOB    NOT NULL,
+    body        BLOB    NOT NULL,
+    signer      BLOB,
+    signature   BLOB
+);
+CREATE INDEX entries_by_hash   ON entries(hash);
+CREATE INDEX entries_by_kind   ON entries(kind, seq);
+CREATE INDEX entries_by_author ON entries(author, seq);
+CREATE TABLE entry_refs (
+    target BLOB    NOT NULL,
+    seq    INTEGER NOT NULL,
+    PRIMARY KEY (target, seq)
+) WITHOUT ROWID;
+CREATE TRIGGER entries_refuse_update BEFORE UPDATE ON entries
+BEGIN SELECT RAISE(ABORT, 'assize entries are append-only: UPDATE refused'); END;
+CREATE TRIGGER entries_refuse_delete BEFORE DELETE ON entries
+BEGIN SELECT RAISE(ABORT, 'assize entries are append-only: DELETE refused'); END;
+CREATE TRIGGER entries_only_next_seq BEFORE INSERT ON entries
+WHEN NEW.seq IS NOT (SELECT COALESCE(MAX(seq), 0) + 1 FROM entries)
+BEGIN SELECT RAISE(ABORT, 'assize entries are append-only: only the next sequence number may be inserted'); END;
+CREATE TRIGGER entry_refs_refuse_update BEFORE UPDATE ON entry_refs
+BEGIN SELECT RAISE(ABORT, 'assize entries are append-only: UPDATE refused'); END;
+CREATE TRIGGER entry_refs_refuse_delete BEFORE DELETE ON entry_refs
+BEGIN SELECT RAISE(ABORT, 'assize entries are append-only: DELETE refused'); END;
+";
+
+const ENTRY_COLUMNS: &str =
+    "seq, hash, prev_hash, record_time, author, kind, refs, body, signer, signature";
+
+/// The last entry of the chain: what the next append links to.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Head {
+    /// Its sequence number.
+    pub seq: u64,
+    /// Its stored hash.
+    pub hash: EntryHash,
+    /// Its record time.
+    pub record_time: Timestamp,
+}
+
+/// How to open an existing ledger file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum OpenMode {
+    /// Reads only; never writes the file.
+    ReadOnly,
+    /// Reads and appends.
+    ReadWrite,
+}
+
+/// An open ledger file.
+pub struct Store {
+    conn: Connection,
+    path: PathBuf,
+}
+
+impl Store {
+    /// Creates a new, empty ledger file; refuses if anything exists at `path`.
+    pub fn create(path: &Path) -> Result<Store> {
+        if path.exists() {
+            return Err(LedgerError::AlreadyExists { path: path.into() });
+        }
+        let flags = OpenFlags::SQLITE_OPEN_READ_WRITE
+            | OpenFlags::SQLITE_OPEN_CREATE
+            | OpenFlags::SQLITE_OPEN_NO_MUTEX;
+        let conn = Connection::open_with_flags(path, flags).map_err(storage("creating the ledger"))?;
+        let journal: String = conn
+            .query_row("PRAGMA journal_mode = WAL", [], |r| r.get(0))
+            .map_err(storage("switching to WAL"))?;
+        if !journal.eq_ignore_ascii_case("wal") {
+            return Err(LedgerError::BadInput {
+                what: "ledger location".into(),
+                reason: format!("the file system does not support WAL journaling ({journal})"),
+            });
+        }
+        let setup = format!(
+            "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = {SCHEMA_VERSION};
+             BEGIN; {SCHEMA} COMMIT;"
+        );
+        conn.execute_batch(&setup).map_err(storage("writing the schema"))?;
+        Self::configure(&conn)?;
+        Ok(Store {
+            conn,
+            path: path.into(),
+        })
+    }
+
+    /// Opens an existing ledger, checking it is one and that its schema is understood.
+    pub fn open(path: &Path, mode: OpenMode) -> Result<Store> {
+        if !path.exists() {
+            return Err(LedgerError::LedgerMissing { path: path.into() });
+        }
+        let access = match mode {
+            OpenMode::ReadOnly => OpenFlags::SQLITE_OPEN_READ_ONLY,
+            OpenMode::ReadWrite => OpenFlags::SQLITE_OPEN_READ_WRITE,
+        };
+        let conn = Connection::open_with_flags(path, access | OpenFlags::SQLITE_OPEN_NO_MUTEX)
+            .map_err(|e| not_a_ledger(path, e))?;
+        Self::configure(&conn)?;
+        let application_id: i32 = conn
+            .query_row("PRAGMA application_id", [], |r| r.get(0))
+            .map_err(|e| not_a_ledger(path, e))?;
+        if application_id != APPLICATION_ID {
+            return Err(LedgerError::NotALedger {
+                path: path.into(),
+                detail: format!("SQLite database with application id {application_id:#x}"),
+            });
+        }
+        let version: i64 = conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .map_err(storage("reading the schema version"))?;
+        if version > SCHEMA_VERSION {
+            return Err(LedgerError::NewerSchema {
+                found: version,
+                supported: SCHEMA_VERSION,
+            });
+        }
+        if version < 1 {
+            return Err(LedgerError::NotALedger {
+                path: path.into(),
+                detail: format!("schema version {version}"),
+            });
+        }
+        Ok(Store {
+            conn,
+            path: path.into(),
+        })
+    }
+
+    fn configure(conn: &Connection) -> Result<()> {
+        conn.busy_timeout(BUSY_TIMEOUT)
+            .map_err(storage("setting the busy timeout"))?;
+        conn.pragma_update(None, "synchronous", "FULL")
+            .map_err(storage("setting synchronous=FULL"))?;
+        Ok(())
+    }
+
+    /// Path of the ledger file.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    /// The last entry, if any.
+    pub fn head(&self) -> Result<Option<Head>> {
+        read_head(&self.conn)
+    }
+
+    /// Sequence number of the first entry stored with this hash.
+    pub fn seq_of_hash(&self, hash: &EntryHash) -> Result<Option<u64>> {
+        seq_of_hash(&self.conn, hash)
+    }
+
+    /// One entry by sequence number.
+    pub fn entry(&self, seq: u64) -> Result<Option<Entry>> {
+        let sql = format!("SELECT {ENTRY_COLUMNS} FROM entries WHERE seq = ?1");
+        self.conn
+            .prepare_cached(&sql)
+            .and_then(|mut s| s.query_row([seq as i64], row_to_entry).optional())
+            .map_err(storage("reading an entry"))
+    }
+
+    /// Calls `visit` for each entry with `seq >= from_seq` in order, one row in memory at a
+    /// time; stops early when `visit` returns `Ok(false)`.
+    pub fn for_each_entry(
+        &self,
+        from_seq: u64,
+        mut visit: impl FnMut(Entry) -> Result<bool>,
+    ) -> Result<()> {
+        let sql = format!("SELECT {ENTRY_COLUMNS} FROM entries WHERE seq >= ?1 ORDER BY seq");
+        let mut statement = self.conn.prepare(&sql).map_err(storage("reading entries"))?;
+        let mut rows = statement
+            .query([from_seq as i64])
+            .map_err(storage("reading entries"))?;
+        while let Some(row) = rows.next().map_err(storage("reading entries"))? {
+            let entry = row_to_entry(row).map_err(storage("decoding an entry row"))?;
+            if !visit(entry)? {
+                break;
+            }
+        }
+        Ok(())
+    }
+
+    /// Entries matching a filter, oldest first, at most `limit`.
+    pub fn find(&self, filter: &EntryFilter, limit: usize) -> Result<Vec<Entry>> {
+        let sql = format!(
+            "SELECT {ENTRY_COLUMNS} FROM entries
+             WHERE seq > ?1 AND (?2 IS NULL OR kind = ?2) AND (?3 IS NULL OR author = ?3)
+             ORDER BY seq LIMIT ?4"
+        );
+        let mut statement = self.conn.prepare(&sql).map_err(storage("finding entries"))?;
+        let rows = statement
+            .query_map(
+                params![
+                    filter.after_seq as i64,
+                    filter.kind,
+                    filter.author,
+                    limit.min(i64::MAX as usize) as i64
+                ],
+                row_to_entry,
+            )
+            .map_err(storage("finding entries"))?;
+        rows.collect::<rusqlite::Result<Vec<_>>>()
+            .map_err(storage("finding entries"))
+    }
+
+    /// Sequence numbers of entries that reference `target`, oldest first.
+    pub fn referencing(&self, target: &EntryHash) -> Result<Vec<u64>> {
+        let mut statement = self
+            .conn
+            .prepare_cached("SELECT seq FROM entry_refs WHERE target = ?1 ORDER BY seq")
+            .map_err(storage("finding references"))?;
+        let rows = statement
+            .query_map([target.0.as_slice()], |r| r.get::<_, i64>(0))
+            .map_err(storage("finding references"))?;
+        rows.map(|r| r.map(|s| s as u64))
+            .collect::<rusqlite::Result<Vec<_>>>()
+            .map_err(storage("finding references"))
+    }
+
+    /// Entries of the given kinds after `after_seq`, oldest first.
+    pub fn entries_of_kinds_after(&self, kinds: &[&str], after_seq: u64) -> Result<Vec<Entry>> {
+        entries_of_kinds_after(&self.conn, kinds, after_seq)
+    }
+
+    /// Starts an append: takes the write lock (`BEGIN IMMEDIATE`) until commit or drop.
+    pub fn begin_append(&mut self) -> Result<AppendTx<'_>> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(storage("starting an append"))?;
+        Ok(AppendTx { tx })
+    }
+
+    /// Direct access for tests that simulate attacks or a full disk.
+    #[cfg(test)]
+    pub(crate) fn connection(&self) -> &Connection {
+        &self.conn
+    }
+}
+
+/// Filter for [`Store::find`].
+#[derive(Clone, Debug, Default)]
+pub struct EntryFilter {
+    /// Only entries after this sequence number.
+    pub after_seq: u64,
+    /// Only this kind.
+    pub kind: Option<String>,
+    /// Only this author.
+    pub author: Option<String>,
+}
+
+/// An append in progress; holds the database write lock.
+pub struct AppendTx<'a> {
+    tx: rusqlite::Transaction<'a>,
+}
+
+impl AppendTx<'_> {
+    /// The head as seen under the write lock.
+    pub fn head(&self) -> Result<Option<Head>> {
+        read_head(&self.tx)
+    }
+
+    /// Sequence number of the entry with this hash, under the write lock.
+    pub fn seq_of_hash(&self, hash: &EntryHash) -> Result<Option<u64>> {
+        seq_of_hash(&self.tx, hash)
+    }
+
+    /// Entries of the given kinds after `after_seq`, under the write lock.
+    pub fn entries_of_kinds_after(&self, kinds: &[&str], after_seq: u64) -> Result<Vec<Entry>> {
+        entries_of_kinds_after(&self.tx, kinds, after_seq)
+    }
+
+    /// Inserts the entry and its reference index rows.
+    pub fn insert(&self, entry: &Entry) -> Result<()> {
+        let refs: Vec<u8> = entry.references.iter().flat_map(|r| r.0).collect();
+        self.tx
+            .prepare_cached(&format!(
+                "INSERT INTO entries ({ENTRY_COLUMNS}) VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)"
+            ))
+            .and_then(|mut s| {
+                s.execute(params![
+                    entry.seq as i64,
+                    entry.hash.0.as_slice(),
+                    entry.prev_hash.0.as_slice(),
+                    entry.record_time.0,
+                    entry.author,
+                    entry.kind,
+                    refs,
+                    entry.body,
+                    entry.signer.map(|k| k.0.to_vec()),
+                    entry.signature.map(|s| s.to_vec()),
+                ])
+            })
+            .map_err(storage("inserting an entry"))?;
+        let mut distinct = entry.references.clone();
+        distinct.sort();
+        distinct.dedup();
+        for target in distinct {
+            self.tx
+                .prepare_cached("INSERT INTO entry_refs (target, seq) VALUES (?1, ?2)")
+                .and_then(|mut s| s.execute(params![target.0.as_slice(), entry.seq as i64]))
+                .map_err(storage("indexing references"))?;
+        }
+        Ok(())
+    }
+
+    /// Makes the append durable.
+    pub fn commit(self) -> Result<()> {
+        self.tx.commit().map_err(storage("committing an append"))
+    }
+}
+
+fn read_head(conn: &Connection) -> Result<Option<Head>> {
+    conn.prepare_cached("SELECT seq, hash, record_time FROM entries ORDER BY seq DESC LIMIT 1")
+        .and_then(|mut s| {
+            s.query_row([], |r| {
+                Ok(Head {
+                    seq: r.get::<_, i64>(0)? as u64,
+                    hash: hash_column(r, 1)?,
+                    record_time: Timestamp(r.get(2)?),
+                })
+            })
+            .optional()
+        })
+        .map_err(storage("reading the head"))
+}
+
+fn entries_of_kinds_after(conn: &Connection, kinds: &[&str], after_seq: u64) -> Result<Vec<Entry>> {
+    let placeholders = vec!["?"; kinds.len()].join(", ");
+    let sql = format!(
+        "SELECT {ENTRY_COLUMNS} FROM entries WHERE kind IN ({placeholders}) AND seq > ? ORDER BY seq"
+    );
+    let mut values: Vec<rusqlite::types::Value> =
+        kinds.iter().map(|k| k.to_string().into()).collect();
+    values.push((after_seq as i64).into());
+    let mut statement = conn.prepare_cached(&sql).map_err(storage("reading registry"))?;
+    let rows = statement
+        .query_map(rusqlite::params_from_iter(values), row_to_entry)
+        .map_err(storage("reading registry"))?;
+    rows.collect::<rusqlite::Result<Vec<_>>>()
+        .map_err(storage("reading registry"))
+}
+
+fn seq_of_hash(conn: &Connection, hash: &EntryHash) -> Result<Option<u64>> {
+    conn.prepare_cached("SELECT MIN(seq) FROM entries WHERE hash = ?1")
+        .and_then(|mut s| s.query_row([hash.0.as_slice()], |r| r.get::<_, Option<i64>>(0)))
+        .map(|seq| seq.map(|s| s as u64))
+        .map_err(storage("looking up a hash"))
+}
+
+fn blob_error(column: usize, what: &str) -> rusqlite::Error {
+    rusqlite::Error::FromSqlConversionFailure(
+        column,
+        rusqlite::types::Type::Blob,
+        format!("stored {what} has the wrong length").into(),
+    )
+}
+
+fn hash_column(row: &Row<'_>, column: usize) -> rusqlite::Result<EntryHash> {
+    let bytes: Vec<u8> = row.get(column)?;
+    EntryHash::from_slice(&bytes).ok_or_else(|| blob_error(column, "hash"))
+}
+
+fn row_to_entry(row: &Row<'_>) -> rusqlite::Result<Entry> {
+    let refs: Vec<u8> = row.get(6)?;
+    if refs.len() % 32 != 0 {
+        return Err(blob_error(6, "reference list"));
+    }
+    let signer: Option<Vec<u8>> = row.get(8)?;
+    let signer = match signer {
+        None => None,
+        Some(b) => Some(PublicKey(b.try_into().map_err(|_| blob_error(8, "key"))?)),
+    };
+    let signature: Option<Vec<u8>> = row.get(9)?;
+    let signature = match signature {
+        None => None,
+        Some(b) => Some(
+            <[u8; 64]>::try_from(b.as_slice()).map_err(|_| blob_error(9, "signature"))?,
+        ),
+    };
+    Ok(Entry {
+        seq: row.get::<_, i64>(0)? as u64,
+        hash: hash_column(row, 1)?,
+        prev_hash: hash_column(row, 2)?,
+        record_time: Timestamp(row.get(3)?),
+        author: row.get(4)?,
+        kind: row.get(5)?,
+        references: refs
+            .chunks_exact(32)
+            .map(|c| EntryHash::from_slice(c).expect("chunks are 32 bytes"))
+            .collect(),
+        body: row.get(7)?,
+        signer,
+        signature,
+    })
+}
+
+fn not_a_ledger(path: &Path, error: rusqlite::Error) -> LedgerError {
+    match error.sqlite_error_code() {
+        Some(rusqlite::ErrorCode::NotADatabase) => LedgerError::NotALedger {
+            path: path.into(),
+            detail: "not a SQLite database".into(),
+        },
+        _ => LedgerError::Storage {
+            action: "opening the ledger",
+            source: error,
+        },
+    }
+}
