@@ -39,6 +39,56 @@ pub fn decode_exact<T: Serialize + DeserializeOwned>(bytes: &[u8]) -> Result<T, 
     Ok(value)
 }
 
+/// Renders CBOR bytes in the diagnostic notation of RFC 8949 section 8, for people reading an
+/// entry whose kind this build may not know.
+pub fn diagnostic(bytes: &[u8]) -> Result<String, CodecError> {
+    let value: serde_cbor::Value =
+        serde_cbor::from_slice(bytes).map_err(|e| CodecError(e.to_string()))?;
+    let mut text = String::new();
+    write_diagnostic(&value, &mut text);
+    Ok(text)
+}
+
+fn write_diagnostic(value: &serde_cbor::Value, out: &mut String) {
+    use serde_cbor::Value;
+    match value {
+        Value::Null => out.push_str("null"),
+        Value::Bool(b) => out.push_str(if *b { "true" } else { "false" }),
+        Value::Integer(i) => out.push_str(&i.to_string()),
+        Value::Float(f) => out.push_str(&format!("{f:?}")),
+        Value::Bytes(b) => out.push_str(&format!("h'{}'", hex::encode(b))),
+        Value::Text(t) => out.push_str(&format!("{t:?}")),
+        Value::Array(items) => {
+            out.push('[');
+            for (i, item) in items.iter().enumerate() {
+                if i > 0 {
+                    out.push_str(", ");
+                }
+                write_diagnostic(item, out);
+            }
+            out.push(']');
+        }
+        Value::Map(map) => {
+            out.push('{');
+            for (i, (k, v)) in map.iter().enumerate() {
+                if i > 0 {
+                    out.push_str(", ");
+                }
+                write_diagnostic(k, out);
+                out.push_str(": ");
+                write_diagnostic(v, out);
+            }
+            out.push('}');
+        }
+        Value::Tag(tag, inner) => {
+            out.push_str(&format!("{tag}("));
+            write_diagnostic(inner, out);
+            out.push(')');
+        }
+        _ => out.push_str("undefined"),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -83,6 +133,14 @@ mod tests {
         bytes.extend([0x18, 0x03]);
         let err = decode_exact::<Sample>(&bytes).unwrap_err();
         assert!(err.0.contains("not in the one encoding"), "{err}");
+    }
+
+    // RFC 8949 section 8 diagnostic notation, examples from Appendix A.
+    #[test]
+    fn renders_diagnostic_notation() {
+        assert_eq!(diagnostic(&[0x83, 0x01, 0x02, 0x03]).unwrap(), "[1, 2, 3]");
+        assert_eq!(diagnostic(&[0x43, 0x01, 0x02, 0x03]).unwrap(), "h'010203'");
+        assert_eq!(diagnostic(&[0xa1, 0x61, 0x61, 0x01]).unwrap(), "{\"a\": 1}");
     }
 
     #[test]

@@ -124,14 +124,17 @@ impl Store {
         };
         let conn = Connection::open_with_flags(path, access | OpenFlags::SQLITE_OPEN_NO_MUTEX)
             .map_err(|e| not_a_ledger(path, e))?;
-        Self::configure(&conn)?;
         let application_id: i32 = conn
             .query_row("PRAGMA application_id", [], |r| r.get(0))
             .map_err(|e| not_a_ledger(path, e))?;
         if application_id != APPLICATION_ID {
             return Err(LedgerError::NotALedger {
                 path: path.into(),
-                detail: format!("SQLite database with application id {application_id:#x}"),
+                detail: if application_id == 0 {
+                    "an empty file or a SQLite database of another program".into()
+                } else {
+                    format!("a SQLite database of another program (application id {application_id:#x})")
+                },
             });
         }
         let version: i64 = conn
@@ -149,6 +152,7 @@ impl Store {
                 detail: format!("schema version {version}"),
             });
         }
+        Self::configure(&conn)?;
         Ok(Store {
             conn,
             path: path.into(),

@@ -1,0 +1,297 @@
+//! Command-line grammar of `assize`: clap structs only, no behaviour.
+
+use clap::{Args, Parser, Subcommand};
+use std::path::PathBuf;
+
+/// Append-only, signed lab ledger: record, list, verify and checkpoint.
+#[derive(Debug, Parser)]
+#[command(name = "assize", version, about, long_about = None)]
+pub struct Cli {
+    /// Ledger file to work on.
+    #[arg(long, global = true, env = "ASSIZE_LEDGER", value_name = "FILE")]
+    pub ledger: Option<PathBuf>,
+
+    /// Print machine-readable JSON instead of tables.
+    #[arg(long, global = true)]
+    pub json: bool,
+
+    /// Read the passphrase from the first line of this file.
+    #[arg(long, global = true, value_name = "FILE", conflicts_with = "passphrase_env")]
+    pub passphrase_file: Option<PathBuf>,
+
+    /// Read the passphrase from this environment variable.
+    #[arg(long, global = true, value_name = "VAR")]
+    pub passphrase_env: Option<String>,
+
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The verbs.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Make or inspect a personal key file.
+    #[command(subcommand)]
+    Key(KeyCommand),
+    /// Start a new ledger for a lab; the key's owner becomes its first QA person.
+    Create(CreateArgs),
+    /// Enrol people, manage their keys and roles, list them.
+    #[command(subcommand)]
+    Person(PersonCommand),
+    /// Append a signed free-text note.
+    Note(NoteArgs),
+    /// List or show entries.
+    #[command(subcommand)]
+    Entries(EntriesCommand),
+    /// Replay the whole chain and report every integrity problem.
+    Verify(VerifyArgs),
+    /// Write or check a signed checkpoint of the head, kept outside the ledger.
+    #[command(subcommand)]
+    Checkpoint(CheckpointCommand),
+    /// Build the demo ledger from samples/ and verify it.
+    Demo(DemoArgs),
+}
+
+/// `assize key ...`
+#[derive(Debug, Subcommand)]
+pub enum KeyCommand {
+    /// Generate a key pair and seal the private key in a passphrase-protected file (mode 0600).
+    New(KeyNewArgs),
+    /// Show whose key a file holds and its public key (no passphrase needed).
+    Show(KeyShowArgs),
+}
+
+/// `assize key new`
+#[derive(Debug, Args)]
+pub struct KeyNewArgs {
+    /// Person id the key is for (lowercase letters, digits, '.', '-', '_').
+    #[arg(long)]
+    pub person: String,
+    /// Where to write the key file; an existing file is never overwritten.
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Memory for the passphrase key derivation, in MiB (at least 8).
+    #[arg(long, default_value_t = 64, value_name = "MIB")]
+    pub kdf_memory_mib: u32,
+}
+
+/// `assize key show`
+#[derive(Debug, Args)]
+pub struct KeyShowArgs {
+    /// The key file.
+    pub file: PathBuf,
+}
+
+/// `assize create`
+#[derive(Debug, Args)]
+pub struct CreateArgs {
+    /// Name of the lab.
+    #[arg(long)]
+    pub lab: String,
+    /// Full name of the first QA person (the key's owner).
+    #[arg(long)]
+    pub name: String,
+    /// That person's key file.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize person ...`
+#[derive(Debug, Subcommand)]
+pub enum PersonCommand {
+    /// Enrol a person with a role and a first public key (signed by QA).
+    Enrol(EnrolArgs),
+    /// Enrol a further key for a person (signed by QA).
+    AddKey(AddKeyArgs),
+    /// Revoke a key from now on (signed by QA or the key's owner).
+    RevokeKey(RevokeKeyArgs),
+    /// Change a person's role from now on (signed by QA, not for oneself).
+    ChangeRole(ChangeRoleArgs),
+    /// List enrolled people, their roles and keys.
+    List,
+}
+
+/// Where a public key comes from.
+#[derive(Debug, Args)]
+#[group(required = true, multiple = false)]
+pub struct PublicKeySource {
+    /// The public key as 64 hex digits.
+    #[arg(long, value_name = "HEX")]
+    pub public_key: Option<String>,
+    /// Read the public key from the person's key file (no passphrase needed).
+    #[arg(long, value_name = "FILE")]
+    pub from_key_file: Option<PathBuf>,
+}
+
+/// `assize person enrol`
+#[derive(Debug, Args)]
+pub struct EnrolArgs {
+    /// Person id to enrol.
+    #[arg(long)]
+    pub id: String,
+    /// Full name.
+    #[arg(long)]
+    pub name: String,
+    /// analyst, reviewer or qa.
+    #[arg(long)]
+    pub role: String,
+    #[command(flatten)]
+    pub public_key: PublicKeySource,
+    /// Key file of the QA person signing the enrolment.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize person add-key`
+#[derive(Debug, Args)]
+pub struct AddKeyArgs {
+    /// Person id.
+    #[arg(long)]
+    pub id: String,
+    #[command(flatten)]
+    pub public_key: PublicKeySource,
+    /// Why the key is added.
+    #[arg(long)]
+    pub reason: String,
+    /// Key file of the QA person signing.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize person revoke-key`
+#[derive(Debug, Args)]
+pub struct RevokeKeyArgs {
+    /// Person id whose key is revoked.
+    #[arg(long)]
+    pub id: String,
+    /// The key to revoke, 64 hex digits.
+    #[arg(long, value_name = "HEX")]
+    pub public_key: String,
+    /// Why (lost, compromised, left the lab).
+    #[arg(long)]
+    pub reason: String,
+    /// Key file of the person signing (QA or the key's owner).
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize person change-role`
+#[derive(Debug, Args)]
+pub struct ChangeRoleArgs {
+    /// Person id.
+    #[arg(long)]
+    pub id: String,
+    /// New role: analyst, reviewer or qa.
+    #[arg(long)]
+    pub role: String,
+    /// Why.
+    #[arg(long)]
+    pub reason: String,
+    /// Key file of the QA person signing.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize note`
+#[derive(Debug, Args)]
+pub struct NoteArgs {
+    /// The note text.
+    #[arg(long)]
+    pub text: String,
+    /// Sequence numbers of entries the note refers to.
+    #[arg(long = "refers-to", value_name = "SEQ")]
+    pub refers_to: Vec<u64>,
+    /// Key file of the author.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize entries ...`
+#[derive(Debug, Subcommand)]
+pub enum EntriesCommand {
+    /// List entries, oldest first.
+    List(ListArgs),
+    /// Show one entry in full, with its decoded body.
+    Show(ShowArgs),
+}
+
+/// `assize entries list`
+#[derive(Debug, Args)]
+pub struct ListArgs {
+    /// Only this kind.
+    #[arg(long)]
+    pub kind: Option<String>,
+    /// Only this author.
+    #[arg(long)]
+    pub author: Option<String>,
+    /// Only entries after this sequence number.
+    #[arg(long, default_value_t = 0, value_name = "SEQ")]
+    pub after: u64,
+    /// At most this many entries.
+    #[arg(long, default_value_t = 100)]
+    pub limit: usize,
+}
+
+/// `assize entries show`
+#[derive(Debug, Args)]
+pub struct ShowArgs {
+    /// Sequence number.
+    pub seq: u64,
+}
+
+/// `assize verify`
+#[derive(Debug, Args)]
+pub struct VerifyArgs {
+    /// A checkpoint file the ledger must still extend (repeatable).
+    #[arg(long = "checkpoint", value_name = "FILE")]
+    pub checkpoints: Vec<PathBuf>,
+    /// A checkpoint code from the logbook the ledger must still extend (repeatable).
+    #[arg(long = "code", value_name = "CODE")]
+    pub codes: Vec<String>,
+    /// Check every signature singly with strict verification instead of in batches.
+    #[arg(long)]
+    pub strict: bool,
+    /// Signature-checking threads (0: one per core).
+    #[arg(long, default_value_t = 0)]
+    pub threads: usize,
+}
+
+/// `assize checkpoint ...`
+#[derive(Debug, Subcommand)]
+pub enum CheckpointCommand {
+    /// Sign a checkpoint of the current head and write it to a file.
+    Write(CheckpointWriteArgs),
+    /// Check that the ledger still extends a checkpoint file or code.
+    Check(CheckpointCheckArgs),
+}
+
+/// `assize checkpoint write`
+#[derive(Debug, Args)]
+pub struct CheckpointWriteArgs {
+    /// File to write (never overwritten).
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Key file of the person signing the checkpoint.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize checkpoint check`
+#[derive(Debug, Args)]
+#[group(required = true, multiple = false)]
+pub struct CheckpointCheckArgs {
+    /// A checkpoint file.
+    #[arg(value_name = "FILE")]
+    pub file: Option<PathBuf>,
+    /// A checkpoint code, e.g. 42-9f86-d081-884c-7d65.
+    #[arg(long, value_name = "CODE")]
+    pub code: Option<String>,
+}
+
+/// `assize demo`
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Directory for the demo ledger, keys and checkpoint (replaced if it holds an earlier demo).
+    #[arg(long, default_value = "assize-demo", value_name = "DIR")]
+    pub dir: PathBuf,
+}

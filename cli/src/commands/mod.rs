@@ -1,0 +1,29 @@
+//! One module per verb; each turns parsed arguments into library calls and hands the result to
+//! `render`/`output`.
+
+mod checkpoint;
+mod create;
+mod demo;
+mod entries;
+mod key;
+mod note;
+mod person;
+mod verify;
+
+use crate::args::{Cli, Command};
+use crate::failure::Failure;
+use crate::Outcome;
+
+/// Runs the command named on the command line.
+pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
+    match &cli.command {
+        Command::Key(command) => key::run(cli, command),
+        Command::Create(args) => create::run(cli, args),
+        Command::Person(command) => person::run(cli, command),
+        Command::Note(args) => note::run(cli, args),
+        Command::Entries(command) => entries::run(cli, command),
+        Command::Verify(args) => verify::run(cli, args),
+        Command::Checkpoint(command) => checkpoint::run(cli, command),
+        Command::Demo(args) => demo::run(cli, args),
+    }
+}
