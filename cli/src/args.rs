@@ -16,7 +16,12 @@ pub struct Cli {
     pub json: bool,
 
     /// Read the passphrase from the first line of this file.
-    #[arg(long, global = true, value_name = "FILE", conflicts_with = "passphrase_env")]
+    #[arg(
+        long,
+        global = true,
+        value_name = "FILE",
+        conflicts_with = "passphrase_env"
+    )]
     pub passphrase_file: Option<PathBuf>,
 
     /// Read the passphrase from this environment variable.

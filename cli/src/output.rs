@@ -23,7 +23,11 @@ pub fn print_json<T: Serialize>(value: &T) -> Result<(), Failure> {
 }
 
 /// Prints JSON when asked for, otherwise the text.
-pub fn print<T: Serialize>(json: bool, value: &T, text: impl FnOnce() -> String) -> Result<(), Failure> {
+pub fn print<T: Serialize>(
+    json: bool,
+    value: &T,
+    text: impl FnOnce() -> String,
+) -> Result<(), Failure> {
     if json {
         print_json(value)
     } else {

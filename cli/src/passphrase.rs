@@ -63,10 +63,12 @@ fn prompt(text: &str) -> Result<Passphrase, Failure> {
             "pass --passphrase-file FILE or --passphrase-env VAR, or run in a terminal",
         ));
     }
-    rpassword::prompt_password(text).map(Zeroizing::new).map_err(|e| {
-        Failure::new(
-            format!("cannot read the passphrase: {e}"),
-            "pass --passphrase-file FILE or --passphrase-env VAR, or run in a terminal",
-        )
-    })
+    rpassword::prompt_password(text)
+        .map(Zeroizing::new)
+        .map_err(|e| {
+            Failure::new(
+                format!("cannot read the passphrase: {e}"),
+                "pass --passphrase-file FILE or --passphrase-env VAR, or run in a terminal",
+            )
+        })
 }

@@ -45,8 +45,7 @@ impl EntryView {
             references: entry.references.iter().map(|r| r.to_hex()).collect(),
             signer: entry.signer.map(|k| k.to_hex()),
             signature: entry.signature.map(hex::encode),
-            body: codec::diagnostic(&entry.body)
-                .unwrap_or_else(|e| format!("(not CBOR: {e})")),
+            body: codec::diagnostic(&entry.body).unwrap_or_else(|e| format!("(not CBOR: {e})")),
             body_cbor_hex: hex::encode(&entry.body),
         }
     }
@@ -87,8 +86,14 @@ pub fn entry_detail(view: &EntryView) -> String {
         ("hash", view.hash.clone()),
         ("previous hash", view.prev_hash.clone()),
         ("references", references),
-        ("signer key", view.signer.clone().unwrap_or_else(|| "unsigned".into())),
-        ("signature", view.signature.clone().unwrap_or_else(|| "none".into())),
+        (
+            "signer key",
+            view.signer.clone().unwrap_or_else(|| "unsigned".into()),
+        ),
+        (
+            "signature",
+            view.signature.clone().unwrap_or_else(|| "none".into()),
+        ),
         ("body", view.body.clone()),
     ];
     for (field, value) in rows {
@@ -170,12 +175,22 @@ pub fn persons_table(people: &[PersonView]) -> String {
             .keys
             .iter()
             .map(|k| match k.revoked_seq {
-                Some(seq) => format!("{} (#{}, revoked #{seq})", &k.public_key[..16], k.enrolled_seq),
+                Some(seq) => format!(
+                    "{} (#{}, revoked #{seq})",
+                    &k.public_key[..16],
+                    k.enrolled_seq
+                ),
                 None => format!("{} (#{}, active)", &k.public_key[..16], k.enrolled_seq),
             })
             .collect::<Vec<_>>()
             .join("\n");
-        t.add_row(vec![p.id.clone(), p.name.clone(), p.role.clone(), roles, keys]);
+        t.add_row(vec![
+            p.id.clone(),
+            p.name.clone(),
+            p.role.clone(),
+            roles,
+            keys,
+        ]);
     }
     t.to_string()
 }
@@ -200,7 +215,10 @@ pub fn integrity_report(report: &IntegrityReport) -> String {
     };
     let rows = vec![
         ("lab", report.lab_name.clone()),
-        ("ledger id", report.ledger_id.clone().unwrap_or_else(|| "-".into())),
+        (
+            "ledger id",
+            report.ledger_id.clone().unwrap_or_else(|| "-".into()),
+        ),
         ("entries", report.entries.to_string()),
         ("signed entries", report.signed.to_string()),
         ("head", head),

@@ -11,12 +11,9 @@ use std::sync::Arc;
 
 /// The ledger path from `--ledger` or `ASSIZE_LEDGER`.
 pub fn ledger_path(cli: &Cli) -> Result<&Path, Failure> {
-    cli.ledger.as_deref().ok_or_else(|| {
-        Failure::new(
-            "no ledger given",
-            "pass --ledger FILE or set ASSIZE_LEDGER",
-        )
-    })
+    cli.ledger
+        .as_deref()
+        .ok_or_else(|| Failure::new("no ledger given", "pass --ledger FILE or set ASSIZE_LEDGER"))
 }
 
 /// The kind rules this build judges ledgers by.
@@ -27,7 +24,12 @@ pub fn kind_rules() -> KindRules {
 /// Opens the ledger named on the command line.
 pub fn open_ledger(cli: &Cli, mode: OpenMode) -> Result<Ledger, Failure> {
     let path = ledger_path(cli)?;
-    Ok(Ledger::open(path, mode, kind_rules(), Arc::new(SystemClock))?)
+    Ok(Ledger::open(
+        path,
+        mode,
+        kind_rules(),
+        Arc::new(SystemClock),
+    )?)
 }
 
 /// Unlocks a key file, asking for its passphrase as the command line says.

@@ -176,7 +176,9 @@ impl CheckpointCode {
         let (seq, rest) = text
             .split_once('-')
             .ok_or("expected SEQ-XXXX-XXXX-XXXX-XXXX")?;
-        let seq: u64 = seq.parse().map_err(|_| format!("{seq:?} is not a sequence number"))?;
+        let seq: u64 = seq
+            .parse()
+            .map_err(|_| format!("{seq:?} is not a sequence number"))?;
         let digits: String = rest.chars().filter(|c| *c != '-').collect();
         let head_prefix: [u8; 8] = hex_array(&digits.to_ascii_lowercase())
             .ok_or("expected 16 hex digits after the sequence number")?;
@@ -187,7 +189,15 @@ impl CheckpointCode {
 impl std::fmt::Display for CheckpointCode {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         let h = hex::encode(self.head_prefix);
-        write!(f, "{}-{}-{}-{}-{}", self.seq, &h[0..4], &h[4..8], &h[8..12], &h[12..16])
+        write!(
+            f,
+            "{}-{}-{}-{}-{}",
+            self.seq,
+            &h[0..4],
+            &h[4..8],
+            &h[8..12],
+            &h[12..16]
+        )
     }
 }
 

@@ -173,7 +173,10 @@ impl Draft {
 /// Checks a person id or kind name: 1..=64 bytes of lowercase ASCII letters, digits, `.`, `-`, `_`.
 pub fn check_name(what: &str, name: &str) -> crate::error::Result<()> {
     if name.is_empty() || name.len() > MAX_NAME_BYTES {
-        return Err(bad(what, format!("{name:?} must be 1 to {MAX_NAME_BYTES} characters")));
+        return Err(bad(
+            what,
+            format!("{name:?} must be 1 to {MAX_NAME_BYTES} characters"),
+        ));
     }
     let allowed = |c: char| c.is_ascii_lowercase() || c.is_ascii_digit() || ".-_".contains(c);
     if !name.chars().all(allowed) {

@@ -47,9 +47,14 @@ impl std::fmt::Debug for EntryHash {
     }
 }
 
+/// Bytes in CBOR; lowercase hex in human-readable formats such as JSON.
 impl Serialize for EntryHash {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.serialize_bytes(&self.0)
+        if s.is_human_readable() {
+            s.serialize_str(&self.to_hex())
+        } else {
+            s.serialize_bytes(&self.0)
+        }
     }
 }
 
@@ -70,8 +75,7 @@ impl<const N: usize> Visitor<'_> for FixedBytes<N> {
     }
 
     fn visit_bytes<E: de::Error>(self, v: &[u8]) -> Result<Self::Value, E> {
-        v.try_into()
-            .map_err(|_| E::invalid_length(v.len(), &self))
+        v.try_into().map_err(|_| E::invalid_length(v.len(), &self))
     }
 }
 

@@ -178,7 +178,10 @@ pub fn unlock_key_file(path: &Path, passphrase: &str) -> Result<Signer> {
         .map_err(|_| key_error(path, "sealed secret has the wrong length".into()))?;
     let signer = Signer::from_secret(&stored.header.person, secret);
     if signer.public_key() != stored.header.public_key {
-        return Err(key_error(path, "secret does not match the public key".into()));
+        return Err(key_error(
+            path,
+            "secret does not match the public key".into(),
+        ));
     }
     Ok(signer)
 }
@@ -193,7 +196,8 @@ fn cipher_for(path: &Path, passphrase: &str, header: &Header) -> Result<ChaCha20
 }
 
 fn read_stored(path: &Path) -> Result<Stored> {
-    let metadata = std::fs::metadata(path).map_err(|e| io(path, e))?;
+    let unreadable = |e: std::io::Error| key_error(path, format!("cannot read it: {e}"));
+    let metadata = std::fs::metadata(path).map_err(unreadable)?;
     if metadata.permissions().mode() & 0o077 != 0 {
         return Err(key_error(
             path,
@@ -203,7 +207,7 @@ fn read_stored(path: &Path) -> Result<Stored> {
             ),
         ));
     }
-    let bytes = std::fs::read(path).map_err(|e| io(path, e))?;
+    let bytes = std::fs::read(path).map_err(unreadable)?;
     let stored: Stored =
         decode_exact(&bytes).map_err(|_| key_error(path, "not an assize key file".into()))?;
     if stored.header.format != FORMAT {

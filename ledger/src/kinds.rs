@@ -74,7 +74,10 @@ impl RoleSet {
 
     /// The roles in the set, in order.
     pub fn roles(self) -> Vec<Role> {
-        Role::ALL.into_iter().filter(|r| self.contains(*r)).collect()
+        Role::ALL
+            .into_iter()
+            .filter(|r| self.contains(*r))
+            .collect()
     }
 }
 

@@ -172,7 +172,13 @@ impl Ledger {
         }
         let change = self
             .registry
-            .check_change(seq, &draft.author, &draft.kind, signer_key.as_ref(), &draft.body)
+            .check_change(
+                seq,
+                &draft.author,
+                &draft.kind,
+                signer_key.as_ref(),
+                &draft.body,
+            )
             .map_err(|reason| LedgerError::Refused { reason })?;
         for reference in &draft.references {
             if tx.seq_of_hash(reference)?.is_none() {

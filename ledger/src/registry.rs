@@ -282,7 +282,9 @@ impl Registry {
     ) -> Result<OpenLedger, String> {
         let open: OpenLedger = decode(body)?;
         if seq != 1 || self.ledger_id.is_some() {
-            return Err(format!("{KIND_OPEN} may only be the first entry, found at {seq}"));
+            return Err(format!(
+                "{KIND_OPEN} may only be the first entry, found at {seq}"
+            ));
         }
         check_enrolment_fields(&open.founder)?;
         if open.founder.role != Role::Qa {
@@ -330,7 +332,11 @@ impl Registry {
         let Some(person) = self.persons.get(&revoke.person) else {
             return Err(format!("person {} is not enrolled", revoke.person));
         };
-        let Some(key) = person.keys.iter().find(|k| k.public_key == revoke.public_key) else {
+        let Some(key) = person
+            .keys
+            .iter()
+            .find(|k| k.public_key == revoke.public_key)
+        else {
             return Err(format!(
                 "key {} does not belong to {}",
                 revoke.public_key.short(),
@@ -338,7 +344,10 @@ impl Registry {
             ));
         };
         if key.revoked.is_some() {
-            return Err(format!("key {} is already revoked", revoke.public_key.short()));
+            return Err(format!(
+                "key {} is already revoked",
+                revoke.public_key.short()
+            ));
         }
         let author_role = self.persons.get(author).map(|p| p.role);
         if author != revoke.person && author_role != Some(Role::Qa) {
@@ -360,7 +369,10 @@ impl Registry {
             return Err("a person may not change their own role".into());
         }
         if person.role == change.role {
-            return Err(format!("{} already has the role {}", change.person, change.role));
+            return Err(format!(
+                "{} already has the role {}",
+                change.person, change.role
+            ));
         }
         Ok(change)
     }
@@ -368,7 +380,10 @@ impl Registry {
     fn check_key_unused(&self, key: &PublicKey) -> Result<(), String> {
         key.to_verifying_key()?;
         match self.key_owner.get(key) {
-            Some(owner) => Err(format!("key {} is already enrolled for {owner}", key.short())),
+            Some(owner) => Err(format!(
+                "key {} is already enrolled for {owner}",
+                key.short()
+            )),
             None => Ok(()),
         }
     }

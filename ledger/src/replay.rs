@@ -592,8 +592,12 @@ impl<'a> Walk<'a> {
                 head_seq: last_seq,
             });
         }
-        self.problems
-            .sort_by_key(|p| (p.seq().unwrap_or(0), matches!(p, Problem::SignatureInvalid { .. })));
+        self.problems.sort_by_key(|p| {
+            (
+                p.seq().unwrap_or(0),
+                matches!(p, Problem::SignatureInvalid { .. }),
+            )
+        });
         IntegrityReport {
             entries: self.entries,
             signed: self.signed,

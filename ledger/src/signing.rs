@@ -61,9 +61,14 @@ impl std::fmt::Debug for PublicKey {
     }
 }
 
+/// Bytes in CBOR; lowercase hex in human-readable formats such as JSON.
 impl Serialize for PublicKey {
     fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.serialize_bytes(&self.0)
+        if s.is_human_readable() {
+            s.serialize_str(&self.to_hex())
+        } else {
+            s.serialize_bytes(&self.0)
+        }
     }
 }
 

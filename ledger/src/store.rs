@@ -91,7 +91,8 @@ impl Store {
         let flags = OpenFlags::SQLITE_OPEN_READ_WRITE
             | OpenFlags::SQLITE_OPEN_CREATE
             | OpenFlags::SQLITE_OPEN_NO_MUTEX;
-        let conn = Connection::open_with_flags(path, flags).map_err(storage("creating the ledger"))?;
+        let conn =
+            Connection::open_with_flags(path, flags).map_err(storage("creating the ledger"))?;
         let journal: String = conn
             .query_row("PRAGMA journal_mode = WAL", [], |r| r.get(0))
             .map_err(storage("switching to WAL"))?;
@@ -105,7 +106,8 @@ impl Store {
             "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = {SCHEMA_VERSION};
              BEGIN; {SCHEMA} COMMIT;"
         );
-        conn.execute_batch(&setup).map_err(storage("writing the schema"))?;
+        conn.execute_batch(&setup)
+            .map_err(storage("writing the schema"))?;
         Self::configure(&conn)?;
         Ok(Store {
             conn,
@@ -133,7 +135,9 @@ impl Store {
                 detail: if application_id == 0 {
                     "an empty file or a SQLite database of another program".into()
                 } else {
-                    format!("a SQLite database of another program (application id {application_id:#x})")
+                    format!(
+                        "a SQLite database of another program (application id {application_id:#x})"
+                    )
                 },
             });
         }
@@ -199,7 +203,10 @@ impl Store {
         mut visit: impl FnMut(Entry) -> Result<bool>,
     ) -> Result<()> {
         let sql = format!("SELECT {ENTRY_COLUMNS} FROM entries WHERE seq >= ?1 ORDER BY seq");
-        let mut statement = self.conn.prepare(&sql).map_err(storage("reading entries"))?;
+        let mut statement = self
+            .conn
+            .prepare(&sql)
+            .map_err(storage("reading entries"))?;
         let mut rows = statement
             .query([from_seq as i64])
             .map_err(storage("reading entries"))?;
@@ -219,7 +226,10 @@ impl Store {
              WHERE seq > ?1 AND (?2 IS NULL OR kind = ?2) AND (?3 IS NULL OR author = ?3)
              ORDER BY seq LIMIT ?4"
         );
-        let mut statement = self.conn.prepare(&sql).map_err(storage("finding entries"))?;
+        let mut statement = self
+            .conn
+            .prepare(&sql)
+            .map_err(storage("finding entries"))?;
         let rows = statement
             .query_map(
                 params![
@@ -261,12 +271,6 @@ impl Store {
             .transaction_with_behavior(TransactionBehavior::Immediate)
             .map_err(storage("starting an append"))?;
         Ok(AppendTx { tx })
-    }
-
-    /// Direct access for tests that simulate attacks or a full disk.
-    #[cfg(test)]
-    pub(crate) fn connection(&self) -> &Connection {
-        &self.conn
     }
 }
 
@@ -365,7 +369,9 @@ fn entries_of_kinds_after(conn: &Connection, kinds: &[&str], after_seq: u64) -> 
     let mut values: Vec<rusqlite::types::Value> =
         kinds.iter().map(|k| k.to_string().into()).collect();
     values.push((after_seq as i64).into());
-    let mut statement = conn.prepare_cached(&sql).map_err(storage("reading registry"))?;
+    let mut statement = conn
+        .prepare_cached(&sql)
+        .map_err(storage("reading registry"))?;
     let rows = statement
         .query_map(rusqlite::params_from_iter(values), row_to_entry)
         .map_err(storage("reading registry"))?;
@@ -406,9 +412,9 @@ fn row_to_entry(row: &Row<'_>) -> rusqlite::Result<Entry> {
     let signature: Option<Vec<u8>> = row.get(9)?;
     let signature = match signature {
         None => None,
-        Some(b) => Some(
-            <[u8; 64]>::try_from(b.as_slice()).map_err(|_| blob_error(9, "signature"))?,
-        ),
+        Some(b) => {
+            Some(<[u8; 64]>::try_from(b.as_slice()).map_err(|_| blob_error(9, "signature"))?)
+        }
     };
     Ok(Entry {
         seq: row.get::<_, i64>(0)? as u64,

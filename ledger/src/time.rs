@@ -33,7 +33,9 @@ impl Timestamp {
 
 impl std::fmt::Display for Timestamp {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        let text = self.to_datetime().to_rfc3339_opts(SecondsFormat::AutoSi, true);
+        let text = self
+            .to_datetime()
+            .to_rfc3339_opts(SecondsFormat::AutoSi, true);
         f.write_str(&text)
     }
 }

@@ -17,7 +17,10 @@ fn main() -> ExitCode {
         eprintln!("usage: append-loop LEDGER PERSON SECRET_HEX COUNT TAG");
         return ExitCode::from(3);
     };
-    let Some(secret) = hex::decode(secret).ok().and_then(|b| <[u8; 32]>::try_from(b).ok()) else {
+    let Some(secret) = hex::decode(secret)
+        .ok()
+        .and_then(|b| <[u8; 32]>::try_from(b).ok())
+    else {
         eprintln!("SECRET_HEX must be 64 hex digits");
         return ExitCode::from(3);
     };
@@ -27,7 +30,12 @@ fn main() -> ExitCode {
     };
     let signer = Signer::from_secret(person, &secret);
     let path = PathBuf::from(ledger);
-    let mut ledger = match Ledger::open(&path, OpenMode::ReadWrite, KindRules::core(), Arc::new(SystemClock)) {
+    let mut ledger = match Ledger::open(
+        &path,
+        OpenMode::ReadWrite,
+        KindRules::core(),
+        Arc::new(SystemClock),
+    ) {
         Ok(l) => l,
         Err(e) => {
             eprintln!("error: {e}");
@@ -41,7 +49,8 @@ fn main() -> ExitCode {
         };
         match ledger.append_record(&note, &signer) {
             Ok(entry) => {
-                let reported = writeln!(out, "{} {}", entry.seq, entry.hash).and_then(|_| out.flush());
+                let reported =
+                    writeln!(out, "{} {}", entry.seq, entry.hash).and_then(|_| out.flush());
                 if reported.is_err() {
                     return ExitCode::from(4);
                 }

@@ -40,12 +40,33 @@ struct DemoPerson {
 #[derive(Deserialize)]
 #[serde(tag = "do", rename_all = "kebab-case", deny_unknown_fields)]
 enum Step {
-    Enrol { by: String, person: String },
-    Note { by: String, text: String },
-    RevokeKey { by: String, person: String, reason: String },
-    AddKey { by: String, person: String, reason: String },
-    ChangeRole { by: String, person: String, role: String, reason: String },
-    Checkpoint { by: String },
+    Enrol {
+        by: String,
+        person: String,
+    },
+    Note {
+        by: String,
+        text: String,
+    },
+    RevokeKey {
+        by: String,
+        person: String,
+        reason: String,
+    },
+    AddKey {
+        by: String,
+        person: String,
+        reason: String,
+    },
+    ChangeRole {
+        by: String,
+        person: String,
+        role: String,
+        reason: String,
+    },
+    Checkpoint {
+        by: String,
+    },
 }
 
 /// What the demo produced, for `--json`.
@@ -62,7 +83,10 @@ struct DemoSummary {
 /// Runs `assize demo`.
 pub fn run(cli: &Cli, args: &DemoArgs) -> Result<Outcome, Failure> {
     let scenario: Scenario = toml::from_str(SCENARIO).map_err(|e| {
-        Failure::new(format!("the embedded demo scenario is malformed: {e}"), "report this as a bug")
+        Failure::new(
+            format!("the embedded demo scenario is malformed: {e}"),
+            "report this as a bug",
+        )
     })?;
     let dir = &args.dir;
     prepare_dir(dir)?;
@@ -71,7 +95,10 @@ pub fn run(cli: &Cli, args: &DemoArgs) -> Result<Outcome, Failure> {
         demo.perform(&scenario, step)?;
     }
     let checkpoint = demo.checkpoint.clone().ok_or_else(|| {
-        Failure::new("the demo scenario writes no checkpoint", "report this as a bug")
+        Failure::new(
+            "the demo scenario writes no checkpoint",
+            "report this as a bug",
+        )
     })?;
     let options = ReplayOptions {
         anchors: vec![Anchor::Checkpoint(checkpoint)],
@@ -132,7 +159,13 @@ fn prepare_dir(dir: &Path) -> Result<(), Failure> {
                 "pass --dir with a new or empty directory",
             ));
         }
-        for name in ["demo.ledger", "demo.ledger-wal", "demo.ledger-shm", "demo.checkpoint", "passphrase.txt"] {
+        for name in [
+            "demo.ledger",
+            "demo.ledger-wal",
+            "demo.ledger-shm",
+            "demo.checkpoint",
+            "passphrase.txt",
+        ] {
             let path = dir.join(name);
             if path.exists() {
                 std::fs::remove_file(path).map_err(io)?;
@@ -185,9 +218,16 @@ impl Demo {
     fn perform(&mut self, scenario: &Scenario, step: &Step) -> Result<(), Failure> {
         match step {
             Step::Enrol { by, person } => {
-                let who = scenario.person.iter().find(|p| &p.id == person).ok_or_else(|| {
-                    Failure::new(format!("demo scenario enrols unknown {person}"), "report this as a bug")
-                })?;
+                let who = scenario
+                    .person
+                    .iter()
+                    .find(|p| &p.id == person)
+                    .ok_or_else(|| {
+                        Failure::new(
+                            format!("demo scenario enrols unknown {person}"),
+                            "report this as a bug",
+                        )
+                    })?;
                 let record = Enrolment {
                     person: who.id.clone(),
                     name: who.name.clone(),
@@ -199,7 +239,8 @@ impl Demo {
             }
             Step::Note { by, text } => {
                 let signer = signer_of(&self.signers, by)?;
-                self.ledger.append_record(&Note { text: text.clone() }, signer)?;
+                self.ledger
+                    .append_record(&Note { text: text.clone() }, signer)?;
             }
             Step::RevokeKey { by, person, reason } => {
                 let record = RevokeKey {
@@ -218,16 +259,23 @@ impl Demo {
                     public_key: new_signer.public_key(),
                     reason: reason.clone(),
                 };
-                self.ledger.append_record(&record, signer_of(&self.signers, by)?)?;
+                self.ledger
+                    .append_record(&record, signer_of(&self.signers, by)?)?;
                 self.signers.insert(person.clone(), new_signer);
             }
-            Step::ChangeRole { by, person, role: new_role, reason } => {
+            Step::ChangeRole {
+                by,
+                person,
+                role: new_role,
+                reason,
+            } => {
                 let record = ChangeRole {
                     person: person.clone(),
                     role: role(new_role)?,
                     reason: reason.clone(),
                 };
-                self.ledger.append_record(&record, signer_of(&self.signers, by)?)?;
+                self.ledger
+                    .append_record(&record, signer_of(&self.signers, by)?)?;
             }
             Step::Checkpoint { by } => {
                 let signer = signer_of(&self.signers, by)?;
@@ -242,7 +290,10 @@ impl Demo {
 
 fn signer_of<'a>(signers: &'a BTreeMap<String, Signer>, id: &str) -> Result<&'a Signer, Failure> {
     signers.get(id).ok_or_else(|| {
-        Failure::new(format!("demo scenario names unknown person {id}"), "report this as a bug")
+        Failure::new(
+            format!("demo scenario names unknown person {id}"),
+            "report this as a bug",
+        )
     })
 }
 

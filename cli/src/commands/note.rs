@@ -12,7 +12,10 @@ use assize_ledger::{Draft, OpenMode};
 /// Runs `assize note`.
 pub fn run(cli: &Cli, args: &NoteArgs) -> Result<Outcome, Failure> {
     if args.text.trim().is_empty() {
-        return Err(Failure::new("the note is empty", "give the text with --text"));
+        return Err(Failure::new(
+            "the note is empty",
+            "give the text with --text",
+        ));
     }
     let mut ledger = open_ledger(cli, OpenMode::ReadWrite)?;
     let references = args
