@@ -16,9 +16,9 @@ pub fn ledger_path(cli: &Cli) -> Result<&Path, Failure> {
         .ok_or_else(|| Failure::new("no ledger given", "pass --ledger FILE or set ASSIZE_LEDGER"))
 }
 
-/// The kind rules this build judges ledgers by.
+/// The kind rules this build judges ledgers by (assembled by the verify crate).
 pub fn kind_rules() -> KindRules {
-    KindRules::core()
+    assize_verify::kind_rules()
 }
 
 /// Opens the ledger named on the command line.

@@ -135,6 +135,9 @@ impl Checkpoint {
             key: PublicKey::from_hex(field("key")?).ok_or_else(|| bad("key"))?,
             signature: hex_array(field("signature")?).ok_or_else(|| bad("signature"))?,
         };
+        if checkpoint.seq == 0 {
+            return Err("field seq must be 1 or more".into());
+        }
         if let Ok(code) = field("code") {
             if code != checkpoint.code().to_string() {
                 return Err("field code does not match seq and head".into());
@@ -178,7 +181,9 @@ impl CheckpointCode {
             .ok_or("expected SEQ-XXXX-XXXX-XXXX-XXXX")?;
         let seq: u64 = seq
             .parse()
-            .map_err(|_| format!("{seq:?} is not a sequence number"))?;
+            .ok()
+            .filter(|s| *s > 0)
+            .ok_or_else(|| format!("{seq:?} is not a sequence number (1 or more)"))?;
         let digits: String = rest.chars().filter(|c| *c != '-').collect();
         let head_prefix: [u8; 8] = hex_array(&digits.to_ascii_lowercase())
             .ok_or("expected 16 hex digits after the sequence number")?;
@@ -244,5 +249,6 @@ mod tests {
         assert_eq!(CheckpointCode::parse(&compact).unwrap(), code);
         assert!(code.matches(&c.head));
         assert!(CheckpointCode::parse("42").is_err());
+        assert!(CheckpointCode::parse("0-0000-0000-0000-0000").is_err());
     }
 }

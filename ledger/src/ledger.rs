@@ -149,8 +149,13 @@ impl Ledger {
         let tx = self.store.begin_append()?;
         let newer = tx.entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
         apply_stored_registry_entries(&mut self.registry, &newer)?;
-        let head = tx.head()?;
-        let (seq, prev_hash) = head.map_or((1, EntryHash::ZERO), |h| (h.seq + 1, h.hash));
+        let head = tx.head_entry()?;
+        if let Some(head) = &head {
+            refuse_altered_head(head)?;
+        }
+        let (seq, prev_hash) = head
+            .as_ref()
+            .map_or((1, EntryHash::ZERO), |h| (h.seq + 1, h.hash));
         let record_time = self.clock.now();
         if let Some(head) = head {
             if record_time < head.record_time {
@@ -215,11 +220,18 @@ impl Ledger {
     /// Signs a checkpoint of the current head.
     pub fn checkpoint(&mut self, signer: &Signer) -> Result<Checkpoint> {
         let head = self.head()?.ok_or(LedgerError::Empty)?;
+        refuse_altered_head(&self.entry(head.seq)?)?;
         let registry = self.registry()?;
         let ledger_id = registry.ledger_id().ok_or(LedgerError::Empty)?;
-        if registry.owner_of(&signer.public_key()) != Some(signer.person()) {
+        let key_active = registry
+            .person(signer.person())
+            .is_some_and(|p| p.active_keys().any(|k| k.public_key == signer.public_key()));
+        if !key_active {
             return Err(LedgerError::Refused {
-                reason: format!("{} is not enrolled with this key", signer.person()),
+                reason: format!(
+                    "{} has no active enrolled key matching this key file",
+                    signer.person()
+                ),
             });
         }
         Ok(Checkpoint::sign(
@@ -230,6 +242,20 @@ impl Ledger {
             signer,
         ))
     }
+}
+
+/// Refuses to build on a head whose stored hash is not the hash of its contents: linking to it
+/// (or certifying it in a checkpoint) would hide an alteration.
+fn refuse_altered_head(head: &Entry) -> Result<()> {
+    if head.compute_hash() != head.hash {
+        return Err(LedgerError::Refused {
+            reason: format!(
+                "the stored hash of the last entry ({}) does not match its contents; the ledger may have been altered",
+                head.seq
+            ),
+        });
+    }
+    Ok(())
 }
 
 /// Applies registry entries already in the ledger (judged when they were appended; replay

@@ -13,7 +13,7 @@ use crate::checkpoint::{Checkpoint, CheckpointCode};
 use crate::kinds::REGISTRY_KINDS;
 use crate::registry::{AuthorityIssue, Registry};
 use crate::signing::{failing_signatures, signed_message, verify_strict, SignatureJob};
-use crate::store::{Head, Store};
+use crate::store::{Head, RowRead, Store};
 use crate::{Entry, EntryHash, KindRules, Timestamp};
 use serde::Serialize;
 use std::sync::mpsc::{channel, sync_channel, Receiver, Sender};
@@ -82,6 +82,13 @@ pub enum Problem {
         expected: u64,
         /// Sequence number found.
         found: u64,
+    },
+    /// A stored row whose columns do not form an entry at all.
+    MalformedRow {
+        /// Entry.
+        seq: u64,
+        /// What is wrong.
+        detail: String,
     },
     /// The record time is earlier than an earlier entry's.
     TimeWentBack {
@@ -172,7 +179,8 @@ impl Problem {
             | RegistryRefused { seq, .. }
             | ReferenceUnknown { seq, .. }
             | ReferenceNotEarlier { seq, .. } => Some(*seq),
-            SequenceGap { found, .. } => Some(*found),
+            SequenceGap { expected, .. } => Some(*expected),
+            MalformedRow { seq, .. } => Some(*seq),
             AnchorOtherLedger { anchor_seq }
             | AnchorSignatureInvalid { anchor_seq, .. }
             | AnchorHashDiffers { anchor_seq, .. } => Some(*anchor_seq),
@@ -206,6 +214,7 @@ impl std::fmt::Display for Problem {
                 "entry {seq}: record time {found} is earlier than {previous} before it"
             ),
             SignatureInvalid { seq, detail } => write!(f, "entry {seq}: {detail}"),
+            MalformedRow { seq, detail } => write!(f, "entry {seq}: stored row is malformed ({detail})"),
             Authority { seq, issue } => write!(f, "entry {seq}: {issue}"),
             RegistryRefused { seq, reason } => write!(f, "entry {seq}: {reason}"),
             ReferenceUnknown { seq, reference } => write!(
@@ -311,8 +320,15 @@ pub fn replay(
             scope.spawn(move || verify_batches(&receiver, &sender, strict));
         }
         drop(failure_sender);
-        let result = store.for_each_entry(1, |entry| {
-            if let Some(batch) = walk.visit(entry)? {
+        let result = store.for_each_row(1, |row| {
+            let batch = match row {
+                RowRead::Entry(entry) => walk.visit(entry)?,
+                RowRead::Malformed { seq, detail } => {
+                    walk.visit_malformed(seq, detail);
+                    None
+                }
+            };
+            if let Some(batch) = batch {
                 let _ = job_sender.send(batch);
             }
             Ok(true)
@@ -361,6 +377,8 @@ struct Walk<'a> {
     registry: Registry,
     expected_seq: u64,
     prev_computed: EntryHash,
+    /// The previous row was malformed, so the link to it cannot be judged.
+    prev_unknown: bool,
     latest_time: Option<Timestamp>,
     entries: u64,
     signed: u64,
@@ -378,6 +396,7 @@ impl<'a> Walk<'a> {
             registry: Registry::new(),
             expected_seq: 1,
             prev_computed: EntryHash::ZERO,
+            prev_unknown: false,
             latest_time: None,
             entries: 0,
             signed: 0,
@@ -393,6 +412,20 @@ impl<'a> Walk<'a> {
         } else {
             self.problems_not_listed += 1;
         }
+    }
+
+    /// Records a row that is not an entry; the next entry's link to it is not judged.
+    fn visit_malformed(&mut self, seq: u64, detail: String) {
+        self.entries += 1;
+        if seq != self.expected_seq {
+            self.add(Problem::SequenceGap {
+                expected: self.expected_seq,
+                found: seq,
+            });
+        }
+        self.expected_seq = seq + 1;
+        self.add(Problem::MalformedRow { seq, detail });
+        self.prev_unknown = true;
     }
 
     /// Checks one entry; returns a full batch of signatures to verify, if one is ready.
@@ -421,6 +454,7 @@ impl<'a> Walk<'a> {
         }
         self.check_anchors(&entry, &computed);
         self.prev_computed = computed;
+        self.prev_unknown = false;
         if self.pending.len() >= BATCH_SIZE {
             return Ok(Some(std::mem::take(&mut self.pending)));
         }
@@ -442,7 +476,7 @@ impl<'a> Walk<'a> {
                 computed: *computed,
             });
         }
-        if entry.prev_hash != self.prev_computed {
+        if entry.prev_hash != self.prev_computed && !self.prev_unknown {
             self.add(Problem::BrokenLink {
                 seq: entry.seq,
                 expected_prev: self.prev_computed,
@@ -573,11 +607,24 @@ impl<'a> Walk<'a> {
                 checkpoint.by
             ))
         } else {
-            None
+            self.revocation_of(checkpoint)
+                .map(|seq| format!("key {} was revoked by entry {seq}", checkpoint.key.short()))
         };
         if let Some(detail) = detail {
             self.add(Problem::AnchorSignatureInvalid { anchor_seq, detail });
         }
+    }
+
+    /// The entry that revoked the checkpoint's key, if it came at or before the checkpoint.
+    fn revocation_of(&self, checkpoint: &Checkpoint) -> Option<u64> {
+        let person = self.registry.person(&checkpoint.by)?;
+        let key = person
+            .keys
+            .iter()
+            .find(|k| k.public_key == checkpoint.key)?;
+        key.revoked
+            .map(|(seq, _)| seq)
+            .filter(|seq| *seq <= checkpoint.seq)
     }
 
     fn finish(mut self, head: Option<Head>) -> IntegrityReport {

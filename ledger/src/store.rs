@@ -219,6 +219,37 @@ impl Store {
         Ok(())
     }
 
+    /// Like [`Store::for_each_entry`], but a row whose columns cannot form an entry (wrong blob
+    /// length, wrong type) is handed to `visit` as [`RowRead::Malformed`] instead of stopping
+    /// the walk, so replay can report it and go on.
+    pub fn for_each_row(
+        &self,
+        from_seq: u64,
+        mut visit: impl FnMut(RowRead) -> Result<bool>,
+    ) -> Result<()> {
+        let sql = format!("SELECT {ENTRY_COLUMNS} FROM entries WHERE seq >= ?1 ORDER BY seq");
+        let mut statement = self
+            .conn
+            .prepare(&sql)
+            .map_err(storage("reading entries"))?;
+        let mut rows = statement
+            .query([from_seq as i64])
+            .map_err(storage("reading entries"))?;
+        while let Some(row) = rows.next().map_err(storage("reading entries"))? {
+            let read = match row_to_entry(row) {
+                Ok(entry) => RowRead::Entry(entry),
+                Err(e) => RowRead::Malformed {
+                    seq: row.get::<_, i64>(0).map_or(0, |s| s as u64),
+                    detail: e.to_string(),
+                },
+            };
+            if !visit(read)? {
+                break;
+            }
+        }
+        Ok(())
+    }
+
     /// Entries matching a filter, oldest first, at most `limit`.
     pub fn find(&self, filter: &EntryFilter, limit: usize) -> Result<Vec<Entry>> {
         let sql = format!(
@@ -274,6 +305,20 @@ impl Store {
     }
 }
 
+/// One row as read by [`Store::for_each_row`].
+#[derive(Clone, Debug)]
+pub enum RowRead {
+    /// A well-formed entry (its hash and signature are still to be checked).
+    Entry(Entry),
+    /// A row whose columns do not form an entry.
+    Malformed {
+        /// Its sequence number.
+        seq: u64,
+        /// What is wrong with it.
+        detail: String,
+    },
+}
+
 /// Filter for [`Store::find`].
 #[derive(Clone, Debug, Default)]
 pub struct EntryFilter {
@@ -294,6 +339,15 @@ impl AppendTx<'_> {
     /// The head as seen under the write lock.
     pub fn head(&self) -> Result<Option<Head>> {
         read_head(&self.tx)
+    }
+
+    /// The whole last entry, under the write lock.
+    pub fn head_entry(&self) -> Result<Option<Entry>> {
+        let sql = format!("SELECT {ENTRY_COLUMNS} FROM entries ORDER BY seq DESC LIMIT 1");
+        self.tx
+            .prepare_cached(&sql)
+            .and_then(|mut s| s.query_row([], row_to_entry).optional())
+            .map_err(storage("reading the head"))
     }
 
     /// Sequence number of the entry with this hash, under the write lock.
