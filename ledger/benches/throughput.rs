@@ -570,7 +570,10 @@ fn run_replay_child(path: &Path) -> BenchResult<()> {
         return Err(format!("replay child: {} is not intact", path.display()).into());
     }
     let peak = peak_resident_kib()?;
-    println!("{CHILD_REPORT} entries={} vm_hwm_kib={peak}", report.entries);
+    println!(
+        "{CHILD_REPORT} entries={} vm_hwm_kib={peak}",
+        report.entries
+    );
     Ok(())
 }
 
@@ -605,7 +608,10 @@ fn child_peak_memory(path: &Path) -> BenchResult<u64> {
     let peak = stdout
         .lines()
         .find(|l| l.starts_with(CHILD_REPORT))
-        .and_then(|l| l.split_whitespace().find_map(|w| w.strip_prefix("vm_hwm_kib=")))
+        .and_then(|l| {
+            l.split_whitespace()
+                .find_map(|w| w.strip_prefix("vm_hwm_kib="))
+        })
         .ok_or_else(|| format!("replay child printed no peak: {stdout:?}"))?;
     Ok(peak.parse()?)
 }

@@ -322,7 +322,7 @@ pub fn replay(
         drop(failure_sender);
         let result = store.for_each_row(1, |row| {
             let batch = match row {
-                RowRead::Entry(entry) => walk.visit(entry)?,
+                RowRead::Entry(entry) => walk.visit(*entry)?,
                 RowRead::Malformed { seq, detail } => {
                     walk.visit_malformed(seq, detail);
                     None

@@ -237,7 +237,7 @@ impl Store {
             .map_err(storage("reading entries"))?;
         while let Some(row) = rows.next().map_err(storage("reading entries"))? {
             let read = match row_to_entry(row) {
-                Ok(entry) => RowRead::Entry(entry),
+                Ok(entry) => RowRead::Entry(Box::new(entry)),
                 Err(e) => RowRead::Malformed {
                     seq: row.get::<_, i64>(0).map_or(0, |s| s as u64),
                     detail: e.to_string(),
@@ -309,7 +309,7 @@ impl Store {
 #[derive(Clone, Debug)]
 pub enum RowRead {
     /// A well-formed entry (its hash and signature are still to be checked).
-    Entry(Entry),
+    Entry(Box<Entry>),
     /// A row whose columns do not form an entry.
     Malformed {
         /// Its sequence number.
