@@ -128,19 +128,32 @@ pub fn run(cli: &Cli, args: &DemoArgs) -> Result<Outcome, Failure> {
 }
 
 fn demo_text(summary: &DemoSummary, people: &str) -> String {
+    let program = invoked_program();
     let ledger = summary.ledger.display();
+    let checkpoint = summary.checkpoint.display();
     let pass = summary.passphrase_file.display();
+    let key = summary.ledger.with_file_name("keys").join("s.obuya.key");
     format!(
-        "Demo ledger built: {ledger} ({} entries)\n\n{people}\n\nVerified against checkpoint {}:\n{}\n\n\
-         Try next:\n  assize --ledger {ledger} entries list\n  assize --ledger {ledger} entries show 1\n  \
-         assize --ledger {ledger} verify --checkpoint {}\n  \
-         assize --ledger {ledger} --passphrase-file {pass} note --text \"my first note\" --key {}\n",
+        "Demo ledger built: {ledger} ({} entries)\n\n{people}\n\n\
+         Verified against checkpoint {checkpoint}:\n{}\n\n\
+         Try next:\n  {program} --ledger {ledger} entries list\n  \
+         {program} --ledger {ledger} entries show 1\n  \
+         {program} --ledger {ledger} verify --checkpoint {checkpoint}\n  \
+         {program} --ledger {ledger} --passphrase-file {pass} note --text \"my first note\" --key {}\n",
         summary.entries,
-        summary.checkpoint.display(),
         integrity_report(&summary.report),
-        summary.checkpoint.display(),
-        summary.ledger.with_file_name("keys").join("s.obuya.key").display(),
+        key.display(),
     )
+}
+
+/// How to call this binary again from the current directory: its relative path when it lives
+/// below it (e.g. `target/debug/assize` after `cargo run`), else plain `assize`.
+fn invoked_program() -> String {
+    let relative = std::env::current_exe().ok().and_then(|exe| {
+        let cwd = std::env::current_dir().ok()?;
+        exe.strip_prefix(&cwd).ok().map(|p| p.display().to_string())
+    });
+    relative.unwrap_or_else(|| "assize".to_string())
 }
 
 /// Creates `dir`, or clears the files an earlier demo left there; refuses any other directory.
