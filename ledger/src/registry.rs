@@ -470,3 +470,235 @@ fn require_reason(reason: &str) -> Result<(), String> {
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::codec::encode;
+    use crate::kinds::KindRules;
+    use crate::Signer;
+
+    const T: Timestamp = Timestamp(1_800_000_000_000_000);
+
+    fn signer(person: &str, seed: u8) -> Signer {
+        Signer::from_secret(person, &[seed; 32])
+    }
+
+    fn enrolment(person: &str, role: Role, key: PublicKey) -> Enrolment {
+        Enrolment {
+            person: person.into(),
+            name: format!("{person} full name"),
+            role,
+            public_key: key,
+        }
+    }
+
+    /// A registry after opening by `q.ito` (QA) and enrolling `a.ruz` (analyst).
+    fn opened() -> Registry {
+        let qa = signer("q.ito", 1);
+        let mut registry = Registry::new();
+        let open = OpenLedger {
+            ledger_id: [7; 16],
+            lab_name: "Unit Lab".into(),
+            founder: enrolment("q.ito", Role::Qa, qa.public_key()),
+        };
+        let change = registry
+            .check_change(
+                1,
+                "q.ito",
+                KIND_OPEN,
+                Some(&qa.public_key()),
+                &encode(&open).unwrap(),
+            )
+            .unwrap()
+            .unwrap();
+        registry.apply(1, T, change);
+        let analyst = enrolment("a.ruz", Role::Analyst, signer("a.ruz", 2).public_key());
+        let change = registry
+            .check_change(
+                2,
+                "q.ito",
+                KIND_ENROL,
+                Some(&qa.public_key()),
+                &encode(&analyst).unwrap(),
+            )
+            .unwrap()
+            .unwrap();
+        registry.apply(2, T, change);
+        registry
+    }
+
+    fn refusal<R: serde::Serialize>(
+        registry: &Registry,
+        author: &str,
+        kind: &str,
+        body: &R,
+    ) -> String {
+        registry
+            .check_change(9, author, kind, None, &encode(body).unwrap())
+            .expect_err("change refused")
+    }
+
+    #[test]
+    fn refuses_enrolment_with_a_small_order_key() {
+        // The identity point encoding (y = 1) has order 1 (RFC 8032 5.1.3 decoding).
+        let mut identity = [0u8; 32];
+        identity[0] = 1;
+        let weak = enrolment("w.eak", Role::Analyst, PublicKey(identity));
+        let reason = refusal(&opened(), "q.ito", KIND_ENROL, &weak);
+        assert!(reason.contains("weak"), "{reason}");
+    }
+
+    #[test]
+    fn refuses_a_second_enrolment_of_a_person_or_a_key() {
+        let registry = opened();
+        let again = enrolment("a.ruz", Role::Analyst, signer("x", 3).public_key());
+        assert!(refusal(&registry, "q.ito", KIND_ENROL, &again).contains("already enrolled"));
+        let reused = enrolment("n.ew", Role::Analyst, signer("a.ruz", 2).public_key());
+        assert!(
+            refusal(&registry, "q.ito", KIND_ENROL, &reused).contains("already enrolled for a.ruz")
+        );
+    }
+
+    #[test]
+    fn refuses_to_revoke_the_last_active_qa_key() {
+        let revoke = RevokeKey {
+            person: "q.ito".into(),
+            public_key: signer("q.ito", 1).public_key(),
+            reason: "leaving".into(),
+        };
+        let reason = refusal(&opened(), "q.ito", KIND_REVOKE_KEY, &revoke);
+        assert!(reason.contains("no QA person"), "{reason}");
+    }
+
+    #[test]
+    fn lets_owner_but_not_another_analyst_revoke_a_key() {
+        let mut registry = opened();
+        let other = enrolment("b.oss", Role::Analyst, signer("b.oss", 4).public_key());
+        let change = registry
+            .check_change(3, "q.ito", KIND_ENROL, None, &encode(&other).unwrap())
+            .unwrap()
+            .unwrap();
+        registry.apply(3, T, change);
+        let revoke = RevokeKey {
+            person: "a.ruz".into(),
+            public_key: signer("a.ruz", 2).public_key(),
+            reason: "lost".into(),
+        };
+        assert!(refusal(&registry, "b.oss", KIND_REVOKE_KEY, &revoke)
+            .contains("only QA or the key's owner"));
+        let body = encode(&revoke).unwrap();
+        assert!(registry
+            .check_change(4, "a.ruz", KIND_REVOKE_KEY, None, &body)
+            .is_ok());
+    }
+
+    #[test]
+    fn refuses_own_role_change_and_a_reasonless_one() {
+        let registry = opened();
+        let own = ChangeRole {
+            person: "q.ito".into(),
+            role: Role::Analyst,
+            reason: "x".into(),
+        };
+        assert!(refusal(&registry, "q.ito", KIND_CHANGE_ROLE, &own).contains("own role"));
+        let blank = ChangeRole {
+            person: "a.ruz".into(),
+            role: Role::Reviewer,
+            reason: "  ".into(),
+        };
+        assert!(refusal(&registry, "q.ito", KIND_CHANGE_ROLE, &blank).contains("reason"));
+    }
+
+    #[test]
+    fn judges_authority_by_role_key_and_revocation() {
+        let mut registry = opened();
+        let rules = KindRules::core();
+        let analyst_key = signer("a.ruz", 2).public_key();
+        assert!(registry
+            .authority_issues("a.ruz", "note", Some(&analyst_key), rules.get("note"))
+            .is_empty());
+        let issues = registry.authority_issues(
+            "a.ruz",
+            KIND_ENROL,
+            Some(&analyst_key),
+            rules.get(KIND_ENROL),
+        );
+        assert!(matches!(
+            issues.as_slice(),
+            [AuthorityIssue::RoleNotAllowed {
+                role: Role::Analyst,
+                ..
+            }]
+        ));
+        let issues =
+            registry.authority_issues("q.ito", "note", Some(&analyst_key), rules.get("note"));
+        assert!(matches!(
+            issues.as_slice(),
+            [AuthorityIssue::KeyOfAnotherPerson { .. }]
+        ));
+        let issues = registry.authority_issues("a.ruz", "note", None, rules.get("note"));
+        assert!(matches!(
+            issues.as_slice(),
+            [AuthorityIssue::SignatureMissing { .. }]
+        ));
+        let issues = registry.authority_issues(
+            "a.ruz",
+            "lab.unknown",
+            Some(&analyst_key),
+            rules.get("lab.unknown"),
+        );
+        assert!(matches!(
+            issues.as_slice(),
+            [AuthorityIssue::KindUnknown { .. }]
+        ));
+        let revoke = RevokeKey {
+            person: "a.ruz".into(),
+            public_key: analyst_key,
+            reason: "lost".into(),
+        };
+        let change = registry
+            .check_change(3, "a.ruz", KIND_REVOKE_KEY, None, &encode(&revoke).unwrap())
+            .unwrap()
+            .unwrap();
+        registry.apply(3, T, change);
+        let issues =
+            registry.authority_issues("a.ruz", "note", Some(&analyst_key), rules.get("note"));
+        assert!(matches!(
+            issues.as_slice(),
+            [AuthorityIssue::KeyRevoked {
+                revoked_at_seq: 3,
+                ..
+            }]
+        ));
+    }
+
+    #[test]
+    fn refuses_a_second_opening_and_data_before_the_opening() {
+        let registry = opened();
+        let qa = signer("q.ito", 1);
+        let open = OpenLedger {
+            ledger_id: [8; 16],
+            lab_name: "Again".into(),
+            founder: enrolment("q.ito", Role::Qa, qa.public_key()),
+        };
+        let reason = registry
+            .check_change(
+                5,
+                "q.ito",
+                KIND_OPEN,
+                Some(&qa.public_key()),
+                &encode(&open).unwrap(),
+            )
+            .unwrap_err();
+        assert!(reason.contains("only be the first entry"), "{reason}");
+        let empty = Registry::new();
+        let note = crate::records::Note {
+            text: "early".into(),
+        };
+        let reason = empty
+            .check_change(1, "q.ito", "note", None, &encode(&note).unwrap())
+            .unwrap_err();
+        assert!(reason.contains("first entry must be"), "{reason}");
+    }
+}
