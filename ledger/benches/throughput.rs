@@ -5,9 +5,9 @@
 //! 1. builds a ledger of `ASSIZE_BENCH_ENTRIES` entries (default 100,000) through
 //!    [`Ledger::append_record`]: the opening entry, three enrolments, then signed notes of
 //!    60–120 bytes from four persons with fixed keys. The first fifth of the notes is timed in
-//!    chunks that alternate with chunks of plain rusqlite inserts (same directory, same pragmas,
-//!    one row of the same stored size per `BEGIN IMMEDIATE` transaction), so disk noise falls
-//!    on both; the rest of the ledger is built the same way and timed on its own;
+//!    chunks that alternate with chunks of plain rusqlite inserts of the very same rows into a
+//!    table with the ledger's columns and indexes (same directory, same pragmas, one row per
+//!    `BEGIN IMMEDIATE` transaction), so disk noise falls on both; the rest of the ledger is built the same way and timed on its own;
 //! 2. times an integrity replay of the whole ledger against batch Ed25519 verification of as
 //!    many signatures split across all cores, and asks `openssl speed` for its single
 //!    verification rate when `openssl` is installed;
@@ -17,7 +17,8 @@
 //!
 //! Inputs are fixed (keys, note texts), so only the timings and the random ledger ids differ
 //! between runs. The benchmark writes only inside a temporary directory under
-//! `ASSIZE_BENCH_DIR` (default: cargo's target tmp dir) and prints only this table.
+//! `ASSIZE_BENCH_DIR` (default: cargo's target tmp dir, on the same disk as the build), prints
+//! the table on stdout and its progress on stderr, and asserts no timing.
 
 use assize_ledger::records::{Enrolment, Note};
 use assize_ledger::signing::signed_message;
@@ -39,15 +40,20 @@ const DEFAULT_ENTRIES: u64 = 100_000;
 const CHILD_FLAG: &str = "--replay-child";
 /// First word of the line a replay child prints for its parent.
 const CHILD_REPORT: &str = "assize-replay-child";
+/// Entry hashes signed to time one signature, the CPU floor of a signed append.
+const SIGNING_SAMPLES: u64 = 2_000;
 /// Signatures per `verify_batch` call in the ceiling (replay uses the same size).
 const CEILING_BATCH: usize = 256;
 /// Replay and its ceiling are timed alternately this many times; the best of each counts.
 const REPLAY_ROUNDS: usize = 2;
-/// Targets.
+/// Target: durable appends/s through the ledger over the raw SQLite ceiling.
 const TARGET_APPEND_RATIO: f64 = 0.85;
+/// Target: replay entries/s over batch verifications/s on all cores.
 const TARGET_REPLAY_RATIO: f64 = 0.60;
+/// Target for "flat": peak memory of the full replay over that of the tenth-size replay.
 const TARGET_MEMORY_GROWTH: f64 = 1.10;
 
+/// Invented lab name for the opening entry.
 const LAB_NAME: &str = "Example Water Testing Lab";
 
 /// A person of the fixture; the first is the founder (QA), who enrols the others.
@@ -88,6 +94,7 @@ const PERSONS: [Person; 4] = [
 /// Entries written before the first note: the opening entry and one enrolment per other person.
 const SETUP_ENTRIES: u64 = PERSONS.len() as u64;
 
+/// Invented bench-log phrases the note texts are made of.
 const NOTE_PHRASES: [&str; 16] = [
     "balance checked with 10 g class E2 weight",
     "titrant standardised in triplicate",
@@ -199,6 +206,19 @@ fn print_machine() {
         .map(|k| k.trim().to_string())
         .unwrap_or_else(|_| "unknown".into());
     println!("machine: nproc {cores}, {model}, kernel {kernel}");
+    println!("load average at start: {}", load_average());
+}
+
+/// The 1-, 5- and 15-minute load averages, to show whether the machine was busy.
+fn load_average() -> String {
+    std::fs::read_to_string("/proc/loadavg")
+        .map(|text| {
+            text.split_whitespace()
+                .take(3)
+                .collect::<Vec<_>>()
+                .join(" ")
+        })
+        .unwrap_or_else(|_| "unknown".into())
 }
 
 fn print_inputs(plan: &Plan, dir: &Path) {
@@ -252,13 +272,50 @@ fn note_text(index: u64) -> String {
 // ---------------------------------------------------------------------------------------------
 // 1. Durable appends against the raw ceiling
 
-/// Timings of the append phase.
+/// Timings of the append phase, with the CPU time and writes behind the timed part.
 struct AppendFigures {
     measured: u64,
     ledger: Duration,
     raw: Duration,
+    ledger_usage: Option<Usage>,
+    raw_usage: Option<Usage>,
     rest: u64,
     rest_time: Duration,
+    signing: Duration,
+}
+
+/// CPU time of the calling thread and bytes this process has sent towards storage (Linux
+/// `/proc`), to tell whether a gap between ledger and ceiling is computing or writing.
+#[derive(Clone, Copy, Default)]
+struct Usage {
+    cpu_ns: u64,
+    written_bytes: u64,
+}
+
+impl Usage {
+    fn now() -> Option<Usage> {
+        let schedstat = std::fs::read_to_string("/proc/thread-self/schedstat").ok()?;
+        let io = std::fs::read_to_string("/proc/self/io").ok()?;
+        let written = io.lines().find_map(|l| l.strip_prefix("write_bytes:"))?;
+        Some(Usage {
+            cpu_ns: schedstat.split_whitespace().next()?.parse().ok()?,
+            written_bytes: written.trim().parse().ok()?,
+        })
+    }
+
+    /// Adds what happened between two readings to a running total.
+    fn accumulate(
+        total: Option<Usage>,
+        before: Option<Usage>,
+        after: Option<Usage>,
+    ) -> Option<Usage> {
+        let (total, before, after) = (total?, before?, after?);
+        Some(Usage {
+            cpu_ns: total.cpu_ns + after.cpu_ns.saturating_sub(before.cpu_ns),
+            written_bytes: total.written_bytes
+                + after.written_bytes.saturating_sub(before.written_bytes),
+        })
+    }
 }
 
 /// Opens a ledger and enrols every fixture person after the founder.
@@ -295,12 +352,6 @@ fn append_note(ledger: &mut Ledger, signers: &[Signer], index: u64) -> BenchResu
         .map_err(|e| format!("appending note {index}: {e}").into())
 }
 
-/// Bytes the ledger stores for an entry's columns, which the raw rows match.
-fn stored_bytes(entry: &Entry) -> usize {
-    let fixed = 32 + 32 + 8 + 32 + 64;
-    fixed + entry.author.len() + entry.kind.len() + 32 * entry.references.len() + entry.body.len()
-}
-
 /// Builds a ledger of `entries` entries without timing it.
 fn build_ledger(path: &Path, entries: u64, signers: &[Signer]) -> BenchResult<()> {
     eprintln!("building the {entries}-entry ledger ...");
@@ -324,15 +375,20 @@ fn build_measured_ledger(
     let notes = plan.entries - SETUP_ENTRIES;
     let measured = plan.measured_notes.min(notes);
     let (mut ledger_time, mut raw_time) = (Duration::ZERO, Duration::ZERO);
+    let (mut ledger_usage, mut raw_usage) = (Some(Usage::default()), Some(Usage::default()));
     let mut next = 0;
     while next < measured {
         let end = (next + plan.chunk).min(measured);
+        let before = Usage::now();
         let started = Instant::now();
-        let sizes = (next..end)
-            .map(|i| append_note(&mut ledger, signers, i).map(|e| stored_bytes(&e)))
+        let appended = (next..end)
+            .map(|i| append_note(&mut ledger, signers, i))
             .collect::<BenchResult<Vec<_>>>()?;
         ledger_time += started.elapsed();
-        raw_time += raw.insert_rows(next, &sizes)?;
+        let between = Usage::now();
+        ledger_usage = Usage::accumulate(ledger_usage, before, between);
+        raw_time += raw.insert_rows(&appended)?;
+        raw_usage = Usage::accumulate(raw_usage, between, Usage::now());
         next = end;
     }
     let started = Instant::now();
@@ -343,15 +399,48 @@ fn build_measured_ledger(
         measured,
         ledger: ledger_time,
         raw: raw_time,
+        ledger_usage,
+        raw_usage,
         rest: notes - measured,
         rest_time: started.elapsed(),
+        signing: time_one_signature(&signers[1]),
     })
 }
 
-/// The raw ceiling: one table, one blob per durable transaction, the ledger's pragmas.
+/// Mean time of one entry signature, which every signed append spends under the write lock.
+fn time_one_signature(signer: &Signer) -> Duration {
+    let hashes: Vec<EntryHash> = (0..SIGNING_SAMPLES)
+        .map(|i| EntryHash::digest(&i.to_le_bytes()))
+        .collect();
+    let started = Instant::now();
+    let signed = hashes
+        .iter()
+        .map(|h| signer.sign_entry(h)[0])
+        .fold(0u8, |a, b| a ^ b);
+    let elapsed = started.elapsed();
+    std::hint::black_box(signed);
+    elapsed / SIGNING_SAMPLES as u32
+}
+
+/// The raw ceiling: the very rows the ledger stored, inserted by plain rusqlite into a table
+/// with the ledger's columns and indexes (no guard triggers), one row per durable
+/// `BEGIN IMMEDIATE` transaction with the ledger's pragmas. What separates the two is exactly
+/// the ledger's own work: reading the head, judging authority, hashing, signing, the guard.
 struct RawTable {
     conn: Connection,
 }
+
+/// The ledger's table and index layout (kept in step with `SCHEMA` in ledger/src/store.rs).
+const RAW_SCHEMA: &str = "
+CREATE TABLE entries (
+    seq INTEGER PRIMARY KEY, hash BLOB NOT NULL, prev_hash BLOB NOT NULL,
+    record_time INTEGER NOT NULL, author TEXT NOT NULL, kind TEXT NOT NULL,
+    refs BLOB NOT NULL, body BLOB NOT NULL, signer BLOB, signature BLOB
+);
+CREATE INDEX entries_by_hash   ON entries(hash);
+CREATE INDEX entries_by_kind   ON entries(kind, seq);
+CREATE INDEX entries_by_author ON entries(author, seq);
+";
 
 impl RawTable {
     fn create(path: &Path) -> BenchResult<RawTable> {
@@ -361,36 +450,39 @@ impl RawTable {
             return Err(format!("raw table: journal mode is {journal}, not wal").into());
         }
         conn.pragma_update(None, "synchronous", "FULL")?;
-        conn.execute_batch("CREATE TABLE rows (id INTEGER PRIMARY KEY, payload BLOB NOT NULL)")?;
+        conn.execute_batch(RAW_SCHEMA)?;
         Ok(RawTable { conn })
     }
 
-    /// Inserts one row per size, each in its own `BEGIN IMMEDIATE` transaction; returns the
-    /// time the inserts took (payloads are made before the clock starts).
-    fn insert_rows(&mut self, first_id: u64, sizes: &[usize]) -> BenchResult<Duration> {
-        let payloads: Vec<Vec<u8>> = sizes
-            .iter()
-            .enumerate()
-            .map(|(i, &size)| raw_payload(first_id + i as u64, size))
-            .collect();
+    /// Inserts each entry's stored values, each in its own `BEGIN IMMEDIATE` transaction;
+    /// returns the time the inserts took.
+    fn insert_rows(&mut self, entries: &[Entry]) -> BenchResult<Duration> {
         let started = Instant::now();
-        for (i, payload) in payloads.iter().enumerate() {
+        for entry in entries {
+            let refs: Vec<u8> = entry.references.iter().flat_map(|r| r.0).collect();
             let tx = self
                 .conn
                 .transaction_with_behavior(TransactionBehavior::Immediate)?;
-            tx.prepare_cached("INSERT INTO rows (id, payload) VALUES (?1, ?2)")?
-                .execute(params![(first_id + i as u64) as i64, payload])?;
+            tx.prepare_cached(
+                "INSERT INTO entries (seq, hash, prev_hash, record_time, author, kind, refs, body, signer, signature)
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10)",
+            )?
+            .execute(params![
+                entry.seq as i64,
+                entry.hash.0.as_slice(),
+                entry.prev_hash.0.as_slice(),
+                entry.record_time.0,
+                entry.author,
+                entry.kind,
+                refs,
+                entry.body,
+                entry.signer.map(|k| k.0.to_vec()),
+                entry.signature.map(|s| s.to_vec()),
+            ])?;
             tx.commit()?;
         }
         Ok(started.elapsed())
     }
-}
-
-fn raw_payload(id: u64, size: usize) -> Vec<u8> {
-    let seed = mix(id);
-    (0..size)
-        .map(|k| (seed.rotate_left(k as u32 % 64) as u8) ^ k as u8)
-        .collect()
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -640,6 +732,15 @@ fn print_table(
         &format!(">= {TARGET_APPEND_RATIO:.2}"),
         verdict(append_rate / raw_rate >= TARGET_APPEND_RATIO),
     ]);
+    print_usage_rows(appends);
+    print_row(&[
+        "  Ed25519 signing us per append",
+        &format!("{:.1}", appends.signing.as_secs_f64() * 1e6),
+        "-",
+        "-",
+        "-",
+        "info",
+    ]);
     print_row(&[
         &format!("durable appends/s, other {} notes", appends.rest),
         &grouped(per_second(appends.rest, appends.rest_time)),
@@ -682,12 +783,37 @@ fn print_table(
     ]);
     println!();
     println!(
-        "ceilings: plain rusqlite row of the same stored size per BEGIN IMMEDIATE transaction \
-         (WAL, synchronous=FULL), interleaved in chunks of {}; ed25519_dalek::verify_batch in \
+        "ceilings: the same rows inserted by plain rusqlite into the ledger's table and indexes, \
+         one per BEGIN IMMEDIATE transaction (WAL, synchronous=FULL), interleaved in chunks of {}; ed25519_dalek::verify_batch in \
          batches of {CEILING_BATCH} on {} threads. Replay and ceiling: best of {REPLAY_ROUNDS}. \
          Memory ratio: {} entries over {} entries.",
         plan.chunk, replays.threads, memory.big_entries, memory.small_entries
     );
+    println!("load average at end: {}", load_average());
+}
+
+/// CPU time and bytes written per append in the timed chunks, when /proc provides them.
+fn print_usage_rows(appends: &AppendFigures) {
+    let (Some(ledger), Some(raw)) = (appends.ledger_usage, appends.raw_usage) else {
+        return;
+    };
+    let per_append = |total: u64| total as f64 / appends.measured.max(1) as f64;
+    print_row(&[
+        "  CPU us per append (timed notes)",
+        &format!("{:.1}", per_append(ledger.cpu_ns) / 1000.0),
+        &format!("{:.1}", per_append(raw.cpu_ns) / 1000.0),
+        "-",
+        "-",
+        "info",
+    ]);
+    print_row(&[
+        "  KiB sent to storage per append",
+        &format!("{:.1}", per_append(ledger.written_bytes) / 1024.0),
+        &format!("{:.1}", per_append(raw.written_bytes) / 1024.0),
+        "-",
+        "-",
+        "info",
+    ]);
 }
 
 fn print_row(cells: &[&str; 6]) {

@@ -25,6 +25,9 @@ pub struct Ledger {
     rules: KindRules,
     clock: Arc<dyn Clock>,
     registry: Registry,
+    /// The head as this handle last checked it under the write lock (its stored hash matched
+    /// its contents and the registry was brought up to it); `None` before the first append.
+    synced_head: Option<Head>,
 }
 
 impl Ledger {
@@ -59,6 +62,7 @@ impl Ledger {
             rules,
             clock,
             registry: Registry::new(),
+            synced_head: None,
         };
         match ledger.append_record(&opening, founder) {
             Ok(entry) => Ok((ledger, entry)),
@@ -83,6 +87,7 @@ impl Ledger {
             rules,
             clock,
             registry: Registry::new(),
+            synced_head: None,
         })
     }
 
@@ -147,15 +152,17 @@ impl Ledger {
         }
         let rule = self.rules.get(&draft.kind);
         let tx = self.store.begin_append()?;
-        let newer = tx.entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
-        apply_stored_registry_entries(&mut self.registry, &newer)?;
-        let head = tx.head_entry()?;
-        if let Some(head) = &head {
-            refuse_altered_head(head)?;
+        let head = tx.head()?;
+        if head != self.synced_head {
+            // Another writer appended (or this is our first append): check the head it left
+            // and bring the registry up to date, all under the write lock.
+            if let Some(head_entry) = tx.head_entry()? {
+                refuse_altered_head(&head_entry)?;
+            }
+            let newer = tx.entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
+            apply_stored_registry_entries(&mut self.registry, &newer)?;
         }
-        let (seq, prev_hash) = head
-            .as_ref()
-            .map_or((1, EntryHash::ZERO), |h| (h.seq + 1, h.hash));
+        let (seq, prev_hash) = head.map_or((1, EntryHash::ZERO), |h| (h.seq + 1, h.hash));
         let record_time = self.clock.now();
         if let Some(head) = head {
             if record_time < head.record_time {
@@ -209,6 +216,11 @@ impl Ledger {
         if let Some(change) = change {
             self.registry.apply(seq, record_time, change);
         }
+        self.synced_head = Some(Head {
+            seq,
+            hash: entry.hash,
+            record_time,
+        });
         Ok(entry)
     }
 

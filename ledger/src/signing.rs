@@ -179,10 +179,19 @@ pub fn failing_signatures(jobs: &[SignatureJob], strict: bool) -> Vec<u64> {
 }
 
 fn batch_passes(jobs: &[SignatureJob]) -> bool {
+    // A ledger has few signers: decompress and weak-check each distinct key once per batch.
+    let mut decoded: Vec<(PublicKey, VerifyingKey)> = Vec::new();
     let mut keys = Vec::with_capacity(jobs.len());
     for job in jobs {
+        if let Some((_, key)) = decoded.iter().find(|(k, _)| *k == job.key) {
+            keys.push(*key);
+            continue;
+        }
         match job.key.to_verifying_key() {
-            Ok(key) => keys.push(key),
+            Ok(key) => {
+                decoded.push((job.key, key));
+                keys.push(key);
+            }
             Err(_) => return false,
         }
     }
