@@ -16,3 +16,4 @@ use assize_ledger::KindRules;
 pub fn kind_rules() -> KindRules {
     KindRules::core()
 }
+
