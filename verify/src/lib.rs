@@ -9,6 +9,9 @@
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
 
+pub mod quantity;
+pub mod rounding;
+
 use assize_ledger::KindRules;
 
 /// The kind rules this build judges ledgers by: the ledger's own kinds (lab record kinds join
@@ -16,4 +19,3 @@ use assize_ledger::KindRules;
 pub fn kind_rules() -> KindRules {
     KindRules::core()
 }
-
