@@ -10,9 +10,9 @@ use crate::entry::Draft;
 use crate::error::Result;
 use crate::kinds::REGISTRY_KINDS;
 use crate::records::{Enrolment, OpenLedger, Record};
-use crate::registry::Registry;
+use crate::registry::{Registry, RegistryChange};
 use crate::replay::{replay, IntegrityReport, ReplayOptions};
-use crate::store::{EntryFilter, Head, Store};
+use crate::store::{AppendTx, EntryFilter, Head, Store};
 use crate::{Entry, EntryHash, KindRules, LedgerError, Role, Signer};
 use std::path::Path;
 use std::sync::Arc;
@@ -138,6 +138,120 @@ impl Ledger {
     /// Everything happens in one `BEGIN IMMEDIATE` transaction: read the head, bring the
     /// registry up to date, judge authority, resolve references, hash, sign, insert, commit.
     pub fn append(&mut self, draft: Draft, signer: Option<&Signer>) -> Result<Entry> {
+        let mut draft = Some(draft);
+        let mut entries = self.append_batch(1, signer, |_, _| {
+            draft.take().ok_or(LedgerError::BadInput {
+                what: "batch".into(),
+                reason: "asked for a second draft".into(),
+            })
+        })?;
+        Ok(entries.remove(0))
+    }
+
+    /// Appends `count` entries in one transaction: all of them, or none. `build(i, earlier)` makes
+    /// the i-th draft and may use the entries already appended in this batch (e.g. to refer to
+    /// them by hash). Each entry is judged exactly as a single append would be.
+    pub fn append_batch<F>(
+        &mut self,
+        count: usize,
+        signer: Option<&Signer>,
+        mut build: F,
+    ) -> Result<Vec<Entry>>
+    where
+        F: FnMut(usize, &[Entry]) -> Result<Draft>,
+    {
+        let tx = self.store.begin_append()?;
+        let mut head = tx.head()?;
+        if head != self.synced_head {
+            // Another writer appended (or this is our first append): check the head it left
+            // and bring the registry up to date, all under the write lock.
+            if let Some(head_entry) = tx.head_entry()? {
+                refuse_altered_head(&head_entry)?;
+            }
+            let newer = tx.entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
+            apply_stored_registry_entries(&mut self.registry, &newer)?;
+        }
+        // Registry changes made inside the batch apply to a copy until the commit succeeds.
+        let mut changed_registry: Option<Registry> = None;
+        let mut appended: Vec<Entry> = Vec::with_capacity(count);
+        for index in 0..count {
+            let draft = build(index, &appended)?;
+            let registry = changed_registry.as_ref().unwrap_or(&self.registry);
+            let judge = Judge {
+                rules: &self.rules,
+                clock: self.clock.as_ref(),
+                registry,
+            };
+            let (entry, change) = judge.seal(&tx, head, draft, signer)?;
+            tx.insert(&entry)?;
+            if let Some(change) = change {
+                changed_registry
+                    .get_or_insert_with(|| self.registry.clone())
+                    .apply(entry.seq, entry.record_time, change);
+            }
+            head = Some(Head {
+                seq: entry.seq,
+                hash: entry.hash,
+                record_time: entry.record_time,
+            });
+            appended.push(entry);
+        }
+        tx.commit()?;
+        if let Some(registry) = changed_registry {
+            self.registry = registry;
+        }
+        self.synced_head = head;
+        Ok(appended)
+    }
+
+    /// Replays the whole ledger and reports every integrity problem.
+    pub fn replay(&self, options: &ReplayOptions) -> Result<IntegrityReport> {
+        replay(&self.store, &self.rules, options)
+    }
+
+    /// Signs a checkpoint of the current head.
+    pub fn checkpoint(&mut self, signer: &Signer) -> Result<Checkpoint> {
+        let head = self.head()?.ok_or(LedgerError::Empty)?;
+        refuse_altered_head(&self.entry(head.seq)?)?;
+        let registry = self.registry()?;
+        let ledger_id = registry.ledger_id().ok_or(LedgerError::Empty)?;
+        let key_active = registry
+            .person(signer.person())
+            .is_some_and(|p| p.active_keys().any(|k| k.public_key == signer.public_key()));
+        if !key_active {
+            return Err(LedgerError::Refused {
+                reason: format!(
+                    "{} has no active enrolled key matching this key file",
+                    signer.person()
+                ),
+            });
+        }
+        Ok(Checkpoint::sign(
+            ledger_id,
+            head.seq,
+            head.hash,
+            self.clock.now(),
+            signer,
+        ))
+    }
+}
+
+/// What an append is judged by: the kind rules, the clock and the registry as of the head.
+struct Judge<'a> {
+    rules: &'a KindRules,
+    clock: &'a dyn Clock,
+    registry: &'a Registry,
+}
+
+impl Judge<'_> {
+    /// Judges one draft against the registry and the head, and builds the signed entry.
+    fn seal(
+        &self,
+        tx: &AppendTx<'_>,
+        head: Option<Head>,
+        draft: Draft,
+        signer: Option<&Signer>,
+    ) -> Result<(Entry, Option<RegistryChange>)> {
         draft.check()?;
         if let Some(signer) = signer {
             if signer.person() != draft.author {
@@ -150,18 +264,6 @@ impl Ledger {
                 });
             }
         }
-        let rule = self.rules.get(&draft.kind);
-        let tx = self.store.begin_append()?;
-        let head = tx.head()?;
-        if head != self.synced_head {
-            // Another writer appended (or this is our first append): check the head it left
-            // and bring the registry up to date, all under the write lock.
-            if let Some(head_entry) = tx.head_entry()? {
-                refuse_altered_head(&head_entry)?;
-            }
-            let newer = tx.entries_of_kinds_after(&REGISTRY_KINDS, self.registry.last_seq())?;
-            apply_stored_registry_entries(&mut self.registry, &newer)?;
-        }
         let (seq, prev_hash) = head.map_or((1, EntryHash::ZERO), |h| (h.seq + 1, h.hash));
         let record_time = self.clock.now();
         if let Some(head) = head {
@@ -173,6 +275,7 @@ impl Ledger {
             }
         }
         let signer_key = signer.map(Signer::public_key);
+        let rule = self.rules.get(&draft.kind);
         let issues =
             self.registry
                 .authority_issues(&draft.author, &draft.kind, signer_key.as_ref(), rule);
@@ -211,48 +314,7 @@ impl Ledger {
         };
         entry.hash = entry.compute_hash();
         entry.signature = signer.map(|s| s.sign_entry(&entry.hash));
-        tx.insert(&entry)?;
-        tx.commit()?;
-        if let Some(change) = change {
-            self.registry.apply(seq, record_time, change);
-        }
-        self.synced_head = Some(Head {
-            seq,
-            hash: entry.hash,
-            record_time,
-        });
-        Ok(entry)
-    }
-
-    /// Replays the whole ledger and reports every integrity problem.
-    pub fn replay(&self, options: &ReplayOptions) -> Result<IntegrityReport> {
-        replay(&self.store, &self.rules, options)
-    }
-
-    /// Signs a checkpoint of the current head.
-    pub fn checkpoint(&mut self, signer: &Signer) -> Result<Checkpoint> {
-        let head = self.head()?.ok_or(LedgerError::Empty)?;
-        refuse_altered_head(&self.entry(head.seq)?)?;
-        let registry = self.registry()?;
-        let ledger_id = registry.ledger_id().ok_or(LedgerError::Empty)?;
-        let key_active = registry
-            .person(signer.person())
-            .is_some_and(|p| p.active_keys().any(|k| k.public_key == signer.public_key()));
-        if !key_active {
-            return Err(LedgerError::Refused {
-                reason: format!(
-                    "{} has no active enrolled key matching this key file",
-                    signer.person()
-                ),
-            });
-        }
-        Ok(Checkpoint::sign(
-            ledger_id,
-            head.seq,
-            head.hash,
-            self.clock.now(),
-            signer,
-        ))
+        Ok((entry, change))
     }
 }
 
