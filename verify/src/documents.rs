@@ -375,6 +375,8 @@ pub struct UncertaintyPolicy {
     pub expanded_uncertainty_rounding: UncertaintyRounding,
     /// Relative standard uncertainty of a balance's sensitivity when no certificate gives one.
     pub balance_sensitivity_relative_u: String,
+    /// Maximum permissible error of the burettes, mL (treated as triangular).
+    pub burette_max_error_ml: String,
 }
 
 /// The lab policy.

@@ -10,11 +10,16 @@
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
 
+pub mod assemble;
+pub mod catalog;
 pub mod chem;
 pub mod documents;
 pub mod quantity;
+pub mod recompute;
 pub mod records;
 pub mod rounding;
+pub mod stats;
+pub mod uncertainty;
 
 use assize_ledger::KindRules;
 

@@ -20,7 +20,7 @@ use super::atomic_weights::{AtomicWeight, AtomicWeightTable};
 use super::formula::{Formula, FormulaError};
 
 /// A molar mass, its standard uncertainty and the table it came from.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
 pub struct MolarMass {
     /// Molar mass in g/mol.
     pub value: f64,
