@@ -60,7 +60,10 @@ fn a_refused_item_leaves_nothing_of_the_batch() {
         }
         Ok(note("q.ambrose", "kept only if the whole batch is"))
     });
-    assert!(matches!(result, Err(LedgerError::Refused { .. })), "{result:?}");
+    assert!(
+        matches!(result, Err(LedgerError::Refused { .. })),
+        "{result:?}"
+    );
     assert_eq!(ledger.head().expect("head").expect("opened").seq, 1);
     // A build error also aborts the batch.
     let result = ledger.append_batch(2, Some(&qa), |i, _| {
