@@ -53,8 +53,73 @@ pub enum Command {
     /// Write or check a signed checkpoint of the head, kept outside the ledger.
     #[command(subcommand)]
     Checkpoint(CheckpointCommand),
+    /// Adopt a method or the lab policy into the ledger, by its SHA-256 (QA).
+    Adopt(AdoptArgs),
+    /// Record one lab entry: `assize add KIND --field value ...` (`assize add --kinds` lists them).
+    Add(AddArgs),
+    /// Record every entry of a batch file (TOML) in one transaction: all or none.
+    Import(ImportArgs),
+    /// Recompute a run from its raw records: each replicate, mean, RSD, uncertainty budget.
+    Recompute(RecomputeArgs),
     /// Build the demo ledger from samples/ and verify it.
     Demo(DemoArgs),
+}
+
+/// `assize adopt`
+#[derive(Debug, Args)]
+pub struct AdoptArgs {
+    /// A method definition (TOML).
+    #[arg(
+        long,
+        value_name = "FILE",
+        required_unless_present = "policy",
+        conflicts_with = "policy"
+    )]
+    pub method: Option<PathBuf>,
+    /// The lab policy (TOML).
+    #[arg(long, value_name = "FILE")]
+    pub policy: Option<PathBuf>,
+    /// Key file of the QA person adopting it.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize add`
+#[derive(Debug, Args)]
+pub struct AddArgs {
+    /// List the kinds of record and their fields.
+    #[arg(long)]
+    pub kinds: bool,
+    /// Key file of the person recording the entry (may also be given among the fields).
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: Option<PathBuf>,
+    /// Kind of record, e.g. weighing, reference-lot, run.
+    #[arg(required_unless_present = "kinds")]
+    pub kind: Option<String>,
+    /// The record's fields as `--name value` (a flag with no value means true).
+    #[arg(
+        trailing_var_arg = true,
+        allow_hyphen_values = true,
+        value_name = "FIELDS"
+    )]
+    pub fields: Vec<String>,
+}
+
+/// `assize import`
+#[derive(Debug, Args)]
+pub struct ImportArgs {
+    /// Batch file: `[[record]]` tables with a `kind` field, in the order to enter them.
+    pub file: PathBuf,
+    /// Key file of the person recording the entries.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize recompute`
+#[derive(Debug, Args)]
+pub struct RecomputeArgs {
+    /// Run id.
+    pub run: String,
 }
 
 /// `assize key ...`

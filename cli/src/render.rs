@@ -252,3 +252,102 @@ fn problems_table(problems: &[Problem]) -> String {
     }
     t.to_string()
 }
+
+/// A recomputed run: replicates, summary and the uncertainty budget of each step.
+pub fn recomputed_text(r: &assize_verify::assemble::Recomputed) -> String {
+    let c = &r.context;
+    let mut text = format!(
+        "run {} ({:?}) under method {} v{} [{}], policy {} v{} [{}]\n",
+        c.run.id,
+        c.run.kind,
+        c.method.id,
+        c.method.version,
+        &c.method_sha256[..12],
+        c.policy.id,
+        c.policy.version,
+        &c.policy_sha256[..12],
+    );
+    if let Some(std) = &r.standardization {
+        text.push_str(&format!(
+            "\nstandardization {} used by this assay:\n",
+            std.run_id
+        ));
+        text.push_str(&outcome_text(std));
+    }
+    text.push('\n');
+    text.push_str(&outcome_text(&r.outcome));
+    text
+}
+
+fn outcome_text(o: &assize_verify::recompute::Outcome) -> String {
+    let mut replicates = table(&[
+        "replicate",
+        "portion (g)",
+        "titrant net",
+        &format!("value ({})", o.unit),
+    ]);
+    for v in &o.replicates {
+        replicates.add_row(vec![
+            v.number.to_string(),
+            v.portion_g.to_string(),
+            v.titrant_net.to_string(),
+            format!("{:.6}", v.value),
+        ]);
+    }
+    let b = &o.budget;
+    let mut summary = table(&["summary", "value"]);
+    let optional =
+        |x: Option<f64>, digits: usize| x.map_or("-".to_string(), |v| format!("{v:.digits$}"));
+    let reported = o.reported.map_or("-".to_string(), |r| {
+        format!(
+            "{} ± {} {} (k = {:.2})",
+            r.value, r.expanded_uncertainty, o.unit, b.coverage_factor
+        )
+    });
+    for (name, value) in [
+        ("mean", format!("{:.6} {}", o.mean, o.unit)),
+        ("standard deviation", optional(o.standard_deviation, 6)),
+        ("RSD (%)", optional(o.rsd_percent, 3)),
+        (
+            "combined standard uncertainty u_c",
+            format!("{:.3e}", b.combined_standard_uncertainty),
+        ),
+        (
+            "effective degrees of freedom",
+            optional(b.effective_degrees_of_freedom, 0),
+        ),
+        ("coverage factor k", format!("{:.3}", b.coverage_factor)),
+        (
+            "expanded uncertainty U",
+            format!("{:.3e}", b.expanded_uncertainty),
+        ),
+        ("reported", reported),
+    ] {
+        summary.add_row(vec![name.to_string(), value]);
+    }
+    let mut budget = table(&[
+        "input",
+        "value",
+        "u",
+        "relative u",
+        "contribution",
+        "share (%)",
+    ]);
+    for t in &b.contributions {
+        budget.add_row(vec![
+            t.name.clone(),
+            format!("{:.6}", t.value),
+            format!("{:.2e}", t.standard_uncertainty),
+            format!("{:.2e}", t.relative_uncertainty),
+            format!("{:.2e}", t.contribution),
+            format!("{:.1}", 100.0 * t.share_of_variance),
+        ]);
+    }
+    let mut text = format!("{replicates}\n{summary}\n{budget}\n");
+    for group in &b.cancelled {
+        text.push_str(&format!(
+            "cancelled: {group} (the same balance appears with opposite exponents)\n"
+        ));
+    }
+    text
+}

@@ -14,6 +14,7 @@ pub mod assemble;
 pub mod catalog;
 pub mod chem;
 pub mod documents;
+pub mod intake;
 pub mod quantity;
 pub mod recompute;
 pub mod records;

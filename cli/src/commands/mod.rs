@@ -6,8 +6,10 @@ mod create;
 mod demo;
 mod entries;
 mod key;
+mod lab;
 mod note;
 mod person;
+mod recompute;
 mod verify;
 
 use crate::args::{Cli, Command};
@@ -24,6 +26,10 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Entries(command) => entries::run(cli, command),
         Command::Verify(args) => verify::run(cli, args),
         Command::Checkpoint(command) => checkpoint::run(cli, command),
+        Command::Adopt(args) => lab::adopt(cli, args),
+        Command::Add(args) => lab::add(cli, args),
+        Command::Import(args) => lab::import(cli, args),
+        Command::Recompute(args) => recompute::run(cli, args),
         Command::Demo(args) => demo::run(cli, args),
     }
 }
