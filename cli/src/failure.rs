@@ -71,7 +71,7 @@ fn hint_for(e: &LedgerError) -> &'static str {
         KeyFile { .. } => "check the --key path points to a key file made by `assize key new`, with mode 0600",
         WrongPassphrase { .. } => "retype the passphrase; for scripts pass --passphrase-file FILE or --passphrase-env VAR",
         Refused { .. } => "nothing was written; `assize person list` shows who holds which role and key",
-        BadInput { .. } => "correct the value and run the command again",
+        BadInput { .. } => "nothing was written; correct the value and run the command again",
         ClockBehind { .. } => "nothing was written; correct the system clock (UTC) before recording",
         UnknownReference { .. } => "refer only to entries already in this ledger (`assize entries list`)",
         NoSuchEntry { .. } => "`assize entries list` shows the sequence numbers in use",

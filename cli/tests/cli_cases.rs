@@ -6,7 +6,10 @@
 //! (q.lindqvist, QA), `keys/analyst.key` (a.mensah), `keys/revoked.key` (r.vance, key revoked),
 //! `keys/stranger.key` (x.stranger, never enrolled), `keys/loose.key` (mode 0644),
 //! `keys/garbage.key` (not a key file); `fixture.ledger`; `newer.ledger` (schema version 2);
-//! `notes.txt` (not a ledger). `{dir}` in a case stands for the fixture directory.
+//! `notes.txt` (not a ledger); adopted `method.toml` (permanganate) and `policy.toml`, a balance
+//! `B1`, reference lot `OX-1`, titrant `KMN-1` and standardization run `STD-1` (entries 5-10);
+//! `unbalanced-method.toml` and `bad-batch.toml` (third record bad). `{dir}` in a case stands for
+//! the fixture directory.
 //! Unless a case says `changes_ledger = true`, the ledger files must be byte-for-byte
 //! unchanged afterwards.
 
@@ -214,6 +217,51 @@ fn build_fixture(dir: &Path) {
         "shopping list: pipette tips, weighing boats\n",
     )
     .expect("notes");
+    lab_fixture(dir);
+}
+
+/// Adopted method and policy, a balance, a reference lot, a titrant and a standardization run,
+/// plus a method file whose assay equation does not balance and a batch with a bad third record.
+fn lab_fixture(dir: &Path) {
+    let policies = Path::new(env!("CARGO_MANIFEST_DIR")).join("../policies");
+    let method =
+        std::fs::read_to_string(policies.join("permanganate-peroxide.toml")).expect("method");
+    std::fs::write(dir.join("method.toml"), &method).expect("write method");
+    std::fs::copy(policies.join("lab-policy.toml"), dir.join("policy.toml")).expect("copy policy");
+    let unbalanced = method.replace("5 O2 + 8 H2O", "5 O2 + 6 H2O");
+    std::fs::write(dir.join("unbalanced-method.toml"), unbalanced).expect("write bad method");
+    let l = [
+        "--ledger",
+        "fixture.ledger",
+        "--passphrase-file",
+        "pass.txt",
+    ];
+    must(
+        dir,
+        &[
+            &l[..],
+            &["adopt", "--method", "method.toml", "--key", "keys/qa.key"],
+        ]
+        .concat(),
+    );
+    must(
+        dir,
+        &[
+            &l[..],
+            &["adopt", "--policy", "policy.toml", "--key", "keys/qa.key"],
+        ]
+        .concat(),
+    );
+    std::fs::write(dir.join("setup.toml"), LAB_SETUP).expect("write setup batch");
+    must(
+        dir,
+        &[
+            &l[..],
+            &["import", "setup.toml", "--key", "keys/analyst.key"],
+        ]
+        .concat(),
+    );
+    std::fs::write(dir.join("bad-batch.toml"), BAD_BATCH).expect("write bad batch");
 }
 
 fn copy_dir(from: &Path, to: &Path) {
@@ -363,3 +411,69 @@ fn every_case_in_tests_cases_holds() {
         failures.join("\n\n")
     );
 }
+
+const LAB_SETUP: &str = r#"
+[[record]]
+kind = "balance"
+id = "B1"
+description = "analytical balance, fixture bench"
+readability = "0.0001 g"
+capacity = "220 g"
+minimum_weight = "0.0820 g"
+
+[[record]]
+kind = "reference-lot"
+id = "OX-1"
+substance = "sodium oxalate"
+formula = "Na2C2O4"
+purity = "0.99965"
+purity_expanded_u = "0.00024"
+coverage_factor = "2"
+certificate = "FX-CERT-1"
+valid_until = "2027-06-30"
+drying = "2 h at 110 C"
+
+[[record]]
+kind = "titrant"
+id = "KMN-1"
+formula = "KMnO4"
+nominal_concentration = "0.02"
+prepared_on = "2026-11-16"
+valid_until = "2027-02-16"
+
+[[record]]
+kind = "run"
+id = "STD-1"
+run_kind = "standardization"
+method = "QAL-M-014"
+policy = "QAL-POL-001"
+titrant = "KMN-1"
+reference_lot = "OX-1"
+started_at = "2026-11-23T08:10:00Z"
+"#;
+
+const BAD_BATCH: &str = r#"
+[[record]]
+kind = "sample"
+id = "S-OK-1"
+description = "first sample, fine"
+received_at = "2026-11-20T14:05:00Z"
+
+[[record]]
+kind = "sample"
+id = "S-OK-2"
+description = "second sample, fine"
+received_at = "2026-11-20T14:06:00Z"
+
+[[record]]
+kind = "weighing"
+run = "STD-1"
+replicate = 1
+portion = "primary-standard"
+balance = "B1"
+mode = "by-difference"
+first = "18,4127 g"
+first_at = "2026-11-23T08:14:10Z"
+second = "18.1616 g"
+second_at = "2026-11-23T08:15:02Z"
+"#;
