@@ -59,6 +59,8 @@ pub enum Command {
     Add(AddArgs),
     /// Record every entry of a batch file (TOML) in one transaction: all or none.
     Import(ImportArgs),
+    /// Correct values of an earlier lab entry, with a reason; the original stays in the ledger.
+    Correct(CorrectArgs),
     /// Recompute a run from its raw records: each replicate, mean, RSD, uncertainty budget.
     Recompute(RecomputeArgs),
     /// Build the demo ledger from samples/ and verify it.
@@ -97,6 +99,26 @@ pub struct AddArgs {
     #[arg(required_unless_present = "kinds")]
     pub kind: Option<String>,
     /// The record's fields as `--name value` (a flag with no value means true).
+    #[arg(
+        trailing_var_arg = true,
+        allow_hyphen_values = true,
+        value_name = "FIELDS"
+    )]
+    pub fields: Vec<String>,
+}
+
+/// `assize correct`
+#[derive(Debug, Args)]
+pub struct CorrectArgs {
+    /// Sequence number of the entry to correct.
+    pub seq: u64,
+    /// Why the value changes (mandatory).
+    #[arg(long)]
+    pub reason: String,
+    /// Key file of the person correcting.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: Option<PathBuf>,
+    /// The fields to change, as `--name value`.
     #[arg(
         trailing_var_arg = true,
         allow_hyphen_values = true,

@@ -13,6 +13,7 @@
 pub mod assemble;
 pub mod catalog;
 pub mod chem;
+pub mod correction;
 pub mod documents;
 pub mod intake;
 pub mod quantity;

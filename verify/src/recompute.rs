@@ -741,7 +741,10 @@ mod tests {
         let outcome = standardize(&data, SETTINGS).unwrap();
         assert_eq!(outcome.unit, "mol/L");
         assert!((outcome.mean - 0.102136).abs() < 5e-7, "{}", outcome.mean);
-        assert!(outcome.standard_deviation.is_none(), "one titration has no SD");
+        assert!(
+            outcome.standard_deviation.is_none(),
+            "one titration has no SD"
+        );
     }
 
     #[test]
@@ -758,15 +761,19 @@ mod tests {
             purity: 0.9997,
             purity_standard_u: 0.00035,
             standard_molar_mass: molar_mass_of("KHC8H4O4", ciaaw_2021()).unwrap(),
-            replicates: [("0.4012", "19.71"), ("0.3987", "19.58"), ("0.4040", "19.85")]
-                .iter()
-                .enumerate()
-                .map(|(i, (m, v))| StandardizationReplicate {
-                    number: i as u32 + 1,
-                    standard: portion(m, "B1"),
-                    titrant: burette(v),
-                })
-                .collect(),
+            replicates: [
+                ("0.4012", "19.71"),
+                ("0.3987", "19.58"),
+                ("0.4040", "19.85"),
+            ]
+            .iter()
+            .enumerate()
+            .map(|(i, (m, v))| StandardizationReplicate {
+                number: i as u32 + 1,
+                standard: portion(m, "B1"),
+                titrant: burette(v),
+            })
+            .collect(),
             blank: None,
             burette_max_error_ml: 0.03,
         };

@@ -1,7 +1,7 @@
 //! `assize adopt | add | import`: lab records entered by hand, by flags or from a batch file,
 //! each signed by the person whose key is used; a batch is written all or nothing.
 
-use crate::args::{AddArgs, AdoptArgs, Cli, ImportArgs};
+use crate::args::{AddArgs, AdoptArgs, Cli, CorrectArgs, ImportArgs};
 use crate::failure::Failure;
 use crate::output::print;
 use crate::render::EntryView;
@@ -9,6 +9,7 @@ use crate::session::{open_ledger, unlock};
 use crate::Outcome;
 use assize_ledger::{LedgerError, OpenMode};
 use assize_verify::catalog::Catalog;
+use assize_verify::correction::correction_draft;
 use assize_verify::intake::{self, Batch, Input, KINDS};
 use assize_verify::records::DocumentKind;
 use std::path::{Path, PathBuf};
@@ -80,6 +81,35 @@ pub fn import(cli: &Cli, args: &ImportArgs) -> Result<Outcome, Failure> {
 
 /// Field pairs from the command line, and the key file if it was given among them.
 type Fields = (Vec<(String, String)>, Option<PathBuf>);
+
+/// Runs `assize correct`.
+pub fn correct(cli: &Cli, args: &CorrectArgs) -> Result<Outcome, Failure> {
+    let (fields, key_in_fields) = split_fields(&args.fields)?;
+    let key = key_in_fields
+        .or_else(|| args.key.clone())
+        .ok_or_else(|| Failure::new("no key file given", "pass --key FILE (or set ASSIZE_KEY)"))?;
+    let mut ledger = open_ledger(cli, OpenMode::ReadWrite)?;
+    let original = ledger.entry(args.seq)?.hash;
+    let catalog = Catalog::load(ledger.store())?;
+    let signer = unlock(cli, &key)?;
+    let author = signer.person().to_string();
+    let entry = ledger.append_batch(1, Some(&signer), |_, _| {
+        correction_draft(&catalog, original, &fields, &args.reason, &author).map_err(|reason| {
+            LedgerError::BadInput {
+                what: format!("correction of entry {}", args.seq),
+                reason,
+            }
+        })
+    })?;
+    let views: Vec<EntryView> = entry.iter().map(EntryView::of).collect();
+    print(cli.json, &views, || {
+        format!(
+            "entry {} recorded: correction of entry {} by {}",
+            entry[0].seq, args.seq, entry[0].author
+        )
+    })?;
+    Ok(Outcome::Clean)
+}
 
 /// Turns `--name value` / `--name=value` / `--flag` into pairs; pulls out `--key FILE`.
 fn split_fields(raw: &[String]) -> Result<Fields, Failure> {

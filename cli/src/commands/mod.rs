@@ -29,6 +29,7 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Adopt(args) => lab::adopt(cli, args),
         Command::Add(args) => lab::add(cli, args),
         Command::Import(args) => lab::import(cli, args),
+        Command::Correct(args) => lab::correct(cli, args),
         Command::Recompute(args) => recompute::run(cli, args),
         Command::Demo(args) => demo::run(cli, args),
     }
