@@ -14,7 +14,7 @@ use crate::records::{
     OosInvestigation, Portion, ReferenceLot, Replicate, ReportedResult, Run, RunKind, Sample,
     Source, StatedQuantity, StatedValue, Titrant, Titration, Weighing, WeighingMode,
 };
-use assize_ledger::{Draft, EntryHash, Record, Timestamp};
+use assize_ledger::{Draft, Entry, EntryHash, Ledger, LedgerError, Record, Signer, Timestamp};
 use serde::Deserialize;
 
 /// One record as entered.
@@ -232,6 +232,31 @@ impl Batch {
     pub fn parse(text: &str) -> Result<Batch, String> {
         toml::from_str(text).map_err(|e| format!("batch file: {}", e.message()))
     }
+}
+
+/// Records `inputs` signed by `signer`, in one transaction: all of them or none. Ids resolve
+/// against the ledger's lab entries and against the earlier inputs of the same call.
+pub fn record(
+    ledger: &mut Ledger,
+    signer: &Signer,
+    inputs: &[Input],
+) -> Result<Vec<Entry>, LedgerError> {
+    let mut catalog = Catalog::load(ledger.store())?;
+    let author = signer.person().to_string();
+    ledger.append_batch(inputs.len(), Some(signer), |i, earlier| {
+        if let Some(previous) = earlier.last() {
+            catalog.add(previous);
+        }
+        draft(&inputs[i], &catalog, &author).map_err(|reason| LedgerError::BadInput {
+            what: format!(
+                "record {} of {} ({})",
+                i + 1,
+                inputs.len(),
+                inputs[i].kind()
+            ),
+            reason,
+        })
+    })
 }
 
 /// Parses an RFC 3339 time with its offset, e.g. `2026-11-03T09:15:00Z`.

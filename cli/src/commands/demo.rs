@@ -7,19 +7,39 @@
 use crate::args::{Cli, DemoArgs};
 use crate::failure::Failure;
 use crate::output::{print_json, print_text};
-use crate::render::{integrity_report, person_views, persons_table};
+use crate::render::{integrity_report, person_views, persons_table, recomputed_text};
 use crate::session::{kind_rules, role};
 use crate::Outcome;
 use assize_ledger::keyfile::{create_key_file, unlock_key_file};
 use assize_ledger::records::{AddKey, ChangeRole, Enrolment, Note, RevokeKey};
 use assize_ledger::replay::{Anchor, ReplayOptions};
 use assize_ledger::{Checkpoint, KdfCost, Ledger, Signer, SystemClock};
+use assize_verify::assemble::{recompute_run, Recomputed};
+use assize_verify::catalog::Catalog;
+use assize_verify::intake::{self, Batch, Input};
+use assize_verify::records::DocumentKind;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 const SCENARIO: &str = include_str!("../../../samples/demo/scenario.toml");
+
+/// Files the scenario names, embedded so the demo runs from the binary alone.
+const EMBEDDED_FILES: [(&str, &str); 3] = [
+    (
+        "lab-policy.toml",
+        include_str!("../../../policies/lab-policy.toml"),
+    ),
+    (
+        "permanganate-peroxide.toml",
+        include_str!("../../../policies/permanganate-peroxide.toml"),
+    ),
+    (
+        "permanganate-week-48.toml",
+        include_str!("../../../samples/lab/permanganate-week-48.toml"),
+    ),
+];
 const MARKER: &str = ".assize-demo";
 
 #[derive(Deserialize)]
@@ -67,6 +87,18 @@ enum Step {
     Checkpoint {
         by: String,
     },
+    Adopt {
+        by: String,
+        document: DocumentKind,
+        file: String,
+    },
+    Import {
+        by: String,
+        file: String,
+    },
+    Recompute {
+        run: String,
+    },
 }
 
 /// What the demo produced, for `--json`.
@@ -78,6 +110,7 @@ struct DemoSummary {
     entries: u64,
     intact: bool,
     report: assize_ledger::IntegrityReport,
+    recomputed: Vec<Recomputed>,
 }
 
 /// Runs `assize demo`.
@@ -114,6 +147,7 @@ pub fn run(cli: &Cli, args: &DemoArgs) -> Result<Outcome, Failure> {
         entries: report.entries,
         intact,
         report,
+        recomputed: std::mem::take(&mut demo.recomputed),
     };
     if cli.json {
         print_json(&summary)?;
@@ -134,13 +168,20 @@ fn demo_text(summary: &DemoSummary, people: &str) -> String {
     let pass = summary.passphrase_file.display();
     let key = summary.ledger.with_file_name("keys").join("s.obuya.key");
     format!(
-        "Demo ledger built: {ledger} ({} entries)\n\n{people}\n\n\
+        "Demo ledger built: {ledger} ({} entries)\n\n{people}\n\n{}\n\
          Verified against checkpoint {checkpoint}:\n{}\n\n\
          Try next:\n  {program} --ledger {ledger} entries list\n  \
          {program} --ledger {ledger} entries show 1\n  \
          {program} --ledger {ledger} verify --checkpoint {checkpoint}\n  \
+         {program} --ledger {ledger} recompute STD-KMN-2611-3-A\n  \
          {program} --ledger {ledger} --passphrase-file {pass} note --text \"my first note\" --key {}\n",
         summary.entries,
+        summary
+            .recomputed
+            .iter()
+            .map(|r| format!("Recomputed from the raw readings:\n{}", recomputed_text(r)))
+            .collect::<Vec<_>>()
+            .join("\n"),
         integrity_report(&summary.report),
         key.display(),
     )
@@ -198,6 +239,7 @@ struct Demo {
     ledger: Ledger,
     signers: BTreeMap<String, Signer>,
     checkpoint: Option<Checkpoint>,
+    recomputed: Vec<Recomputed>,
 }
 
 impl Demo {
@@ -225,6 +267,7 @@ impl Demo {
             ledger,
             signers,
             checkpoint: None,
+            recomputed: Vec::new(),
         })
     }
 
@@ -290,6 +333,29 @@ impl Demo {
                 self.ledger
                     .append_record(&record, signer_of(&self.signers, by)?)?;
             }
+            Step::Adopt { by, document, file } => {
+                let input = Input::Adopt {
+                    document: *document,
+                    file: Some(file.clone()),
+                    text: Some(embedded(file)?.to_string()),
+                };
+                intake::record(&mut self.ledger, signer_of(&self.signers, by)?, &[input])?;
+            }
+            Step::Import { by, file } => {
+                let batch = Batch::parse(embedded(file)?)
+                    .map_err(|e| Failure::new(e, "report this as a bug"))?;
+                intake::record(
+                    &mut self.ledger,
+                    signer_of(&self.signers, by)?,
+                    &batch.record,
+                )?;
+            }
+            Step::Recompute { run } => {
+                let catalog = Catalog::load(self.ledger.store())?;
+                let recomputed = recompute_run(&catalog, run)
+                    .map_err(|e| Failure::new(e, "report this as a bug"))?;
+                self.recomputed.push(recomputed);
+            }
             Step::Checkpoint { by } => {
                 let signer = signer_of(&self.signers, by)?;
                 let checkpoint = self.ledger.checkpoint(signer)?;
@@ -299,6 +365,19 @@ impl Demo {
         }
         Ok(())
     }
+}
+
+fn embedded(name: &str) -> Result<&'static str, Failure> {
+    EMBEDDED_FILES
+        .iter()
+        .find(|(n, _)| *n == name)
+        .map(|(_, text)| *text)
+        .ok_or_else(|| {
+            Failure::new(
+                format!("the demo scenario names unknown file {name}"),
+                "report this as a bug",
+            )
+        })
 }
 
 fn signer_of<'a>(signers: &'a BTreeMap<String, Signer>, id: &str) -> Result<&'a Signer, Failure> {

@@ -156,23 +156,8 @@ fn read_text(path: &Path) -> Result<String, Failure> {
 /// Resolves and appends the inputs in one transaction, signed with `key`.
 fn record(cli: &Cli, key: &Path, inputs: Vec<Input>) -> Result<Outcome, Failure> {
     let mut ledger = open_ledger(cli, OpenMode::ReadWrite)?;
-    let mut catalog = Catalog::load(ledger.store())?;
     let signer = unlock(cli, key)?;
-    let author = signer.person().to_string();
-    let entries = ledger.append_batch(inputs.len(), Some(&signer), |i, earlier| {
-        if let Some(previous) = earlier.last() {
-            catalog.add(previous);
-        }
-        intake::draft(&inputs[i], &catalog, &author).map_err(|reason| LedgerError::BadInput {
-            what: format!(
-                "record {} of {} ({})",
-                i + 1,
-                inputs.len(),
-                inputs[i].kind()
-            ),
-            reason,
-        })
-    })?;
+    let entries = intake::record(&mut ledger, &signer, &inputs)?;
     let views: Vec<EntryView> = entries.iter().map(EntryView::of).collect();
     print(cli.json, &views, || {
         entries
