@@ -7,10 +7,12 @@
 //! `w_A = c_T·q_T·(ν_A/ν_T)·M_A/m_S` (mass fraction, ×100 for %). The budget is one product
 //! model over both steps, evaluated at the mean portion and titrant amounts, with a repeatability
 //! factor per step (Type A, ν = n − 1) whose value makes the model equal the mean of the
-//! replicates. Each balance contributes a rounding term per net mass (two readings, each
-//! rectangular over ±d/2) and one sensitivity term shared by every mass it weighed (a
-//! correlation group): exponents add, so the same balance weighing the titrant in both steps
-//! cancels, two balances do not. This module computes; it never reads the ledger or judges.
+//! replicates. Each mean net mass carries the rounding of its readings (two per replicate, each
+//! rectangular over ±d/2, independent between replicates, so divided by √n for the mean; a blank's
+//! readings are common to every replicate) and one sensitivity term shared by every mass its
+//! balance weighed (a correlation group): exponents add, so the same balance weighing the titrant
+//! in both steps cancels, two balances do not. The budget's u_c is checked against a Monte Carlo
+//! propagation (JCGM 101) through this very code in the tests. This module computes; it never reads the ledger or judges.
 
 use crate::chem::MolarMass;
 use crate::documents::{MeasuredBy, Stoichiometry};
@@ -308,11 +310,13 @@ fn standardization_terms(data: &StandardizationData, values: &[ReplicateValue]) 
     let first = &data.replicates[0];
     let standard_balance = &first.standard.balance;
     let mean_portion = mean_of(values.iter().map(|v| v.portion_g));
+    let n = values.len();
     terms.extend(mass_terms(
         "primary standard mass",
         mean_portion,
         standard_balance,
         1.0,
+        rounding_of_mean(standard_balance.readability_g, n, false),
     ));
     terms.push(plain(
         "purity of the primary standard",
@@ -332,6 +336,7 @@ fn standardization_terms(data: &StandardizationData, values: &[ReplicateValue]) 
         &first.titrant,
         data.blank.as_ref(),
         mean_titrant,
+        n,
         data.burette_max_error_ml,
         -1.0,
     ));
@@ -350,12 +355,14 @@ fn assay_terms(
 ) -> Vec<Term> {
     let mut terms = Vec::new();
     let first = &data.replicates[0];
+    let n = values.len();
     let mean_titrant = mean_of(values.iter().map(|v| v.titrant_net));
     terms.extend(titrant_terms(
         "titrant in assay",
         &first.titrant,
         data.blank.as_ref(),
         mean_titrant,
+        n,
         standardization.burette_max_error_ml,
         1.0,
     ));
@@ -371,6 +378,7 @@ fn assay_terms(
         mean_sample,
         &first.sample.balance,
         -1.0,
+        rounding_of_mean(first.sample.balance.readability_g, n, false),
     ));
     terms.push(repeatability_of("repeatability of assay", values));
     terms
@@ -387,9 +395,33 @@ fn plain(name: &str, value: f64, u: f64, exponent: f64) -> Term {
     }
 }
 
-/// Rounding of two readings (each rectangular over ±d/2) and the balance's sensitivity.
-fn mass_terms(name: &str, mean_net_g: f64, balance: &BalanceFacts, exponent: f64) -> Vec<Term> {
-    let rounding_u = (2.0f64).sqrt() * balance.readability_g / (2.0 * 3.0f64.sqrt());
+/// Standard uncertainty of one displayed reading from its rounding (rectangular over ±d/2).
+fn reading_u(resolution: f64) -> f64 {
+    resolution / (2.0 * 3.0f64.sqrt())
+}
+
+/// Uncertainty of a mean net amount over `n` replicates from the rounding of its readings: two
+/// readings per replicate, independent between replicates (so the mean divides by √n), plus,
+/// when a blank is subtracted from every replicate, the blank's two readings, common to all.
+fn rounding_of_mean(resolution: f64, n: usize, blank: bool) -> f64 {
+    let per_replicate = 2.0 * reading_u(resolution).powi(2) / n.max(1) as f64;
+    let common = if blank {
+        2.0 * reading_u(resolution).powi(2)
+    } else {
+        0.0
+    };
+    (per_replicate + common).sqrt()
+}
+
+/// Rounding of the readings behind a mean net mass, and the balance's sensitivity (systematic,
+/// shared by every mass that balance weighed).
+fn mass_terms(
+    name: &str,
+    mean_net_g: f64,
+    balance: &BalanceFacts,
+    exponent: f64,
+    rounding_u: f64,
+) -> Vec<Term> {
     vec![
         plain(
             &format!("{name} (readings on {})", balance.id),
@@ -406,31 +438,29 @@ fn mass_terms(name: &str, mean_net_g: f64, balance: &BalanceFacts, exponent: f64
     ]
 }
 
+/// Titrant amount of a step: by mass like any net mass; by burette, reading resolution plus the
+/// burette's maximum permissible error (triangular, systematic: the same burette throughout).
 fn titrant_terms(
     name: &str,
     amount: &TitrantAmount,
     blank: Option<&TitrantAmount>,
     mean_net: f64,
+    n: usize,
     burette_max_error_ml: f64,
     exponent: f64,
 ) -> Vec<Term> {
     match amount {
         TitrantAmount::Mass(portion) => {
-            let mut terms = mass_terms(name, mean_net, &portion.balance, exponent);
-            if blank.is_some() {
-                // The blank is a third and fourth reading on the same balance.
-                terms[0].standard_uncertainty *= 2.0f64.sqrt();
-            }
-            terms
+            let rounding = rounding_of_mean(portion.balance.readability_g, n, blank.is_some());
+            mass_terms(name, mean_net, &portion.balance, exponent, rounding)
         }
         TitrantAmount::Volume { resolution_ml, .. } => {
-            let readings = if blank.is_some() { 4.0 } else { 2.0 };
-            let reading_u2 = readings * (resolution_ml / (2.0 * 3.0f64.sqrt())).powi(2);
-            let calibration_u2 = (burette_max_error_ml / 6.0f64.sqrt()).powi(2);
+            let reading = rounding_of_mean(*resolution_ml, n, blank.is_some());
+            let calibration = burette_max_error_ml / 6.0f64.sqrt();
             vec![plain(
                 &format!("{name} (burette)"),
                 mean_net,
-                (reading_u2 + calibration_u2).sqrt(),
+                (reading.powi(2) + calibration.powi(2)).sqrt(),
                 exponent,
             )]
         }
@@ -794,5 +824,83 @@ mod tests {
                 .unwrap()
         };
         assert!(burette_u(&with) > burette_u(&without));
+    }
+
+    /// Readings of identical replicates (no scatter, so no Type A term) for the Monte Carlo check.
+    fn flat_runs(titrant_balance: &str) -> (StandardizationData, AssayData) {
+        let mut std = standardization(titrant_balance);
+        for r in &mut std.replicates {
+            r.standard.net_g = d("0.2511");
+            r.titrant = TitrantAmount::Mass(portion("37.4120", titrant_balance));
+        }
+        let mut assay = peroxide_assay(titrant_balance);
+        for r in &mut assay.replicates {
+            r.sample.net_g = d("0.1502");
+            r.titrant = TitrantAmount::Mass(portion("26.3310", titrant_balance));
+        }
+        (std, assay)
+    }
+
+    // JCGM 101:2008 (REFERENCES.md section 4) [pub]: propagate the distributions themselves and
+    // compare the standard deviation of the output with the GUM u_c. Here the propagation runs
+    // through the engine's own code path on perturbed raw data: every reading gets a rectangular
+    // rounding error of ±d/2, each balance one normal sensitivity factor shared by all masses it
+    // weighed, the purity and both molar masses normal errors with their standard uncertainties
+    // (sampled independently, as the budget assumes). M = 20,000 trials (at least the 10^4
+    // JCGM 101 asks for p = 0.95); the standard error of a sample SD is then about 0.5 %, so 3 %
+    // is a comfortable tolerance that still catches a wrong sensitivity or a missed factor.
+    #[test]
+    fn assay_budget_agrees_with_a_monte_carlo_run_through_the_engine() {
+        use rand::rngs::StdRng;
+        use rand::{Rng, SeedableRng};
+        use rand_distr::{Distribution, Normal};
+        for titrant_balance in ["B1", "B2"] {
+            let (std, assay_data) = flat_runs(titrant_balance);
+            let gum = assay(&std, &assay_data, SETTINGS).unwrap();
+            let mut rng = StdRng::seed_from_u64(0x4a43_474d_2026);
+            let unit = Normal::new(0.0, 1.0).unwrap();
+            let mut outputs = Vec::new();
+            for _ in 0..20_000 {
+                let sensitivity: Vec<(String, f64)> = ["B1", "B2"]
+                    .iter()
+                    .map(|b| (b.to_string(), 1.0 + 2e-5 * unit.sample(&mut rng)))
+                    .collect();
+                let factor = |b: &str| sensitivity.iter().find(|(id, _)| id == b).unwrap().1;
+                let mut perturb = |p: &MassPortion| {
+                    let rounding: f64 = (0..2).map(|_| rng.gen_range(-0.00005..0.00005)).sum();
+                    let net = (to_f64(p.net_g) + rounding) * factor(&p.balance.id);
+                    MassPortion {
+                        net_g: Decimal::from_f64_retain(net).unwrap(),
+                        balance: p.balance.clone(),
+                    }
+                };
+                let mut s = std.clone();
+                for r in &mut s.replicates {
+                    r.standard = perturb(&r.standard);
+                    if let TitrantAmount::Mass(t) = &r.titrant {
+                        r.titrant = TitrantAmount::Mass(perturb(t));
+                    }
+                }
+                let mut a = assay_data.clone();
+                for r in &mut a.replicates {
+                    r.sample = perturb(&r.sample);
+                    if let TitrantAmount::Mass(t) = &r.titrant {
+                        r.titrant = TitrantAmount::Mass(perturb(t));
+                    }
+                }
+                s.purity += std.purity_standard_u * unit.sample(&mut rng);
+                s.standard_molar_mass.value +=
+                    std.standard_molar_mass.standard_uncertainty * unit.sample(&mut rng);
+                a.analyte_molar_mass.value +=
+                    assay_data.analyte_molar_mass.standard_uncertainty * unit.sample(&mut rng);
+                outputs.push(assay(&s, &a, SETTINGS).unwrap().mean);
+            }
+            let mc_sd = stats::sample_standard_deviation(&outputs).unwrap();
+            let u_c = gum.budget.combined_standard_uncertainty;
+            assert!(
+                (mc_sd / u_c - 1.0).abs() < 0.03,
+                "titrant on {titrant_balance}: Monte Carlo SD {mc_sd:.4e} vs GUM u_c {u_c:.4e}"
+            );
+        }
     }
 }
