@@ -11,7 +11,7 @@ use crate::error::Result;
 use crate::kinds::REGISTRY_KINDS;
 use crate::records::{Enrolment, OpenLedger, Record};
 use crate::registry::{Registry, RegistryChange};
-use crate::replay::{replay, IntegrityReport, ReplayOptions};
+use crate::replay::{replay, replay_observed, IntegrityReport, ReplayOptions};
 use crate::store::{AppendTx, EntryFilter, Head, Store};
 use crate::{Entry, EntryHash, KindRules, LedgerError, Role, Signer};
 use std::path::Path;
@@ -207,6 +207,18 @@ impl Ledger {
     /// Replays the whole ledger and reports every integrity problem.
     pub fn replay(&self, options: &ReplayOptions) -> Result<IntegrityReport> {
         replay(&self.store, &self.rules, options)
+    }
+
+    /// Replays like [`Ledger::replay`] and hands every entry the walk reads to `observe`, in
+    /// order, so a caller builds its own view from the same single read of the file (see
+    /// [`crate::replay::replay_observed`]). Trust what `observe` built only as far as the
+    /// report allows.
+    pub fn replay_observed(
+        &self,
+        options: &ReplayOptions,
+        observe: &mut dyn FnMut(Entry),
+    ) -> Result<IntegrityReport> {
+        replay_observed(&self.store, &self.rules, options, observe)
     }
 
     /// Signs a checkpoint of the current head.

@@ -304,6 +304,22 @@ pub fn replay(
     rules: &KindRules,
     options: &ReplayOptions,
 ) -> crate::error::Result<IntegrityReport> {
+    replay_observed(store, rules, options, &mut |_| {})
+}
+
+/// Replays like [`replay`] and hands every well-formed entry the walk reads to `observe`, in
+/// sequence order, as soon as the walk has judged it (the walk is done with it, so `observe`
+/// may keep it or pass it to another thread), so a caller can build its own view of the
+/// ledger from the same single read. `observe` sees entries whatever the report will say about
+/// them (a signature is only known to fail once its batch is verified); the caller must look
+/// at the report before trusting what it built. Rows that do not form an entry are not handed
+/// on. Replay itself still holds one entry at a time; what `observe` keeps is its own.
+pub fn replay_observed(
+    store: &Store,
+    rules: &KindRules,
+    options: &ReplayOptions,
+    observe: &mut dyn FnMut(Entry),
+) -> crate::error::Result<IntegrityReport> {
     let threads = match options.threads {
         0 => std::thread::available_parallelism().map_or(1, |n| n.get()),
         n => n,
@@ -322,7 +338,11 @@ pub fn replay(
         drop(failure_sender);
         let result = store.for_each_row(1, |row| {
             let batch = match row {
-                RowRead::Entry(entry) => walk.visit(*entry)?,
+                RowRead::Entry(entry) => {
+                    let batch = walk.visit(&entry)?;
+                    observe(*entry);
+                    batch
+                }
                 RowRead::Malformed { seq, detail } => {
                     walk.visit_malformed(seq, detail);
                     None
@@ -429,10 +449,10 @@ impl<'a> Walk<'a> {
     }
 
     /// Checks one entry; returns a full batch of signatures to verify, if one is ready.
-    fn visit(&mut self, entry: Entry) -> crate::error::Result<Option<Vec<SignatureJob>>> {
+    fn visit(&mut self, entry: &Entry) -> crate::error::Result<Option<Vec<SignatureJob>>> {
         self.entries += 1;
         let computed = entry.compute_hash();
-        self.check_chain(&entry, &computed);
+        self.check_chain(entry, &computed);
         let authority = self.registry.authority_issues(
             &entry.author,
             &entry.kind,
@@ -447,12 +467,12 @@ impl<'a> Walk<'a> {
             });
         }
         let is_registry_kind = REGISTRY_KINDS.contains(&entry.kind.as_str());
-        let signature_ok = self.check_signature(&entry, &computed, is_registry_kind);
-        self.check_references(&entry)?;
+        let signature_ok = self.check_signature(entry, &computed, is_registry_kind);
+        self.check_references(entry)?;
         if is_registry_kind || self.registry.ledger_id().is_none() {
-            self.apply_registry(&entry, authority_ok && signature_ok);
+            self.apply_registry(entry, authority_ok && signature_ok);
         }
-        self.check_anchors(&entry, &computed);
+        self.check_anchors(entry, &computed);
         self.prev_computed = computed;
         self.prev_unknown = false;
         if self.pending.len() >= BATCH_SIZE {
@@ -655,5 +675,48 @@ impl<'a> Walk<'a> {
             problems_not_listed: self.problems_not_listed,
             anchors_checked: self.anchors.len(),
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::records::Note;
+    use crate::{FixedClock, Ledger, Signer};
+    use std::sync::Arc;
+
+    #[test]
+    fn observer_sees_every_entry_once_in_order_and_the_report_is_unchanged() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let qa = Signer::from_secret("q.ambrose", &[31; 32]);
+        let clock = Arc::new(FixedClock::new(Timestamp(1_800_000_000_000_000), 1_000));
+        let (mut ledger, _) = Ledger::create(
+            &dir.path().join("observed.ledger"),
+            "Observer Test Lab",
+            "Quill Ambrose",
+            &qa,
+            KindRules::core(),
+            clock,
+        )
+        .expect("create");
+        for i in 0..300 {
+            let note = Note {
+                text: format!("note {i}"),
+            };
+            ledger.append_record(&note, &qa).expect("append");
+        }
+        let mut seen = Vec::new();
+        let observed = ledger
+            .replay_observed(&ReplayOptions::default(), &mut |e| {
+                seen.push((e.seq, e.hash))
+            })
+            .expect("replay");
+        let plain = ledger.replay(&ReplayOptions::default()).expect("replay");
+        assert!(observed.intact(), "{:?}", observed.problems);
+        assert_eq!(observed.entries, plain.entries);
+        assert_eq!(seen.len(), 301);
+        let seqs: Vec<u64> = seen.iter().map(|(seq, _)| *seq).collect();
+        assert_eq!(seqs, (1..=301).collect::<Vec<_>>());
+        assert_eq!(seen.last().map(|(_, h)| *h), observed.head.map(|h| h.hash));
     }
 }

@@ -242,12 +242,26 @@ pub fn assay(
     data: &AssayData,
     settings: Settings,
 ) -> Result<Outcome, RecomputeError> {
+    let std_outcome = standardize(standardization, settings).map_err(|e| RecomputeError {
+        run_id: data.run_id.clone(),
+        reason: format!("its standardization: {e}"),
+    })?;
+    assay_with_standardization(standardization, &std_outcome, data, settings)
+}
+
+/// Like [`assay`], for a caller that already holds `std_outcome`, the outcome of
+/// [`standardize`] for `standardization` with the same `settings` (several assays relying on
+/// one standardization need it only once). Given any other outcome the result is meaningless.
+pub fn assay_with_standardization(
+    standardization: &StandardizationData,
+    std_outcome: &Outcome,
+    data: &AssayData,
+    settings: Settings,
+) -> Result<Outcome, RecomputeError> {
     let fail = |reason: String| RecomputeError {
         run_id: data.run_id.clone(),
         reason,
     };
-    let std_outcome = standardize(standardization, settings)
-        .map_err(|e| fail(format!("its standardization: {e}")))?;
     if data.replicates.is_empty() {
         return Err(fail("no valid replicates".into()));
     }
@@ -677,6 +691,23 @@ mod tests {
         assert!((outcome.budget.value - mean).abs() < 1e-10);
         let reported = outcome.reported.unwrap();
         assert!(reported.expanded_uncertainty > Decimal::ZERO);
+    }
+
+    #[test]
+    fn assay_with_a_held_standardization_outcome_equals_assay() {
+        let std = standardization("B2");
+        let held = standardize(&std, SETTINGS).unwrap();
+        let data = peroxide_assay("B2");
+        assert_eq!(
+            assay_with_standardization(&std, &held, &data, SETTINGS).unwrap(),
+            assay(&std, &data, SETTINGS).unwrap()
+        );
+        let mut empty = data.clone();
+        empty.replicates.clear();
+        assert_eq!(
+            assay_with_standardization(&std, &held, &empty, SETTINGS).unwrap_err(),
+            assay(&std, &empty, SETTINGS).unwrap_err()
+        );
     }
 
     // Common practice (REFERENCES.md section 7, [cp]): a sensitivity error of the balance that

@@ -5,9 +5,12 @@
 //! hand-typed t table. Finite degrees of freedom up to [`STATRS_MAX_DEGREES_OF_FREEDOM`] use
 //! statrs's `StudentsT`; above that, where statrs 0.18 loses accuracy, the quantile is the
 //! asymptotic expansion about the normal quantile; infinite degrees of freedom use statrs's
-//! `Normal` (available without default features). This module never rounds for reporting, never
-//! reads records and never prints.
+//! `Normal` (available without default features); quantiles asked of `StudentsT` are remembered
+//! per thread, since budgets ask for the same few again and again. This module never rounds for
+//! reporting, never reads records and never prints.
 
+use std::cell::RefCell;
+use std::collections::HashMap;
 use std::fmt;
 
 use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
@@ -101,9 +104,33 @@ pub fn student_t_quantile(probability: f64, degrees_of_freedom: f64) -> Result<f
     if degrees_of_freedom > STATRS_MAX_DEGREES_OF_FREEDOM {
         return Ok(large_dof_t_quantile(probability, degrees_of_freedom));
     }
+    let key = (probability.to_bits(), degrees_of_freedom.to_bits());
+    if let Some(known) = KNOWN_QUANTILES.with(|known| known.borrow().get(&key).copied()) {
+        return Ok(known);
+    }
     let distribution = StudentsT::new(0.0, 1.0, degrees_of_freedom)
         .map_err(|_| StatsError::InvalidDegreesOfFreedom { degrees_of_freedom })?;
-    Ok(distribution.inverse_cdf(probability))
+    let quantile = distribution.inverse_cdf(probability);
+    KNOWN_QUANTILES.with(|known| {
+        let mut known = known.borrow_mut();
+        if known.len() >= MAX_KNOWN_QUANTILES {
+            known.clear();
+        }
+        known.insert(key, quantile);
+    });
+    Ok(quantile)
+}
+
+/// Most Student t quantiles remembered per thread.
+const MAX_KNOWN_QUANTILES: usize = 4096;
+
+thread_local! {
+    /// Student t quantiles already asked of statrs on this thread, by the exact bits of
+    /// (probability, degrees of freedom). statrs inverts the regularized incomplete beta
+    /// function iteratively (microseconds per call), while budgets ask again and again for the
+    /// same few points: Welch–Satterthwaite degrees of freedom are whole numbers. Remembering
+    /// a pure function's result changes no value.
+    static KNOWN_QUANTILES: RefCell<HashMap<(u64, u64), f64>> = RefCell::new(HashMap::new());
 }
 
 /// Two-sided coverage factor `k = t_{(1+p)/2}(ν)` for a coverage probability `p` (e.g. 0.95)
@@ -157,6 +184,32 @@ mod tests {
             (actual - expected).abs() <= tolerance,
             "{actual} differs from {expected} by more than {tolerance}"
         );
+    }
+
+    #[test]
+    fn a_remembered_quantile_is_exactly_what_statrs_gives() {
+        let direct = |p: f64, dof: f64| StudentsT::new(0.0, 1.0, dof).unwrap().inverse_cdf(p);
+        for round in 0..2 {
+            for dof in [1.0, 2.0, 4.0, 17.0, 7.5, 999.0] {
+                let quantile = student_t_quantile(0.975, dof).unwrap();
+                assert_eq!(
+                    quantile.to_bits(),
+                    direct(0.975, dof).to_bits(),
+                    "{dof} ({round})"
+                );
+            }
+        }
+        // More points than are remembered: the memory starts over, values stay exact.
+        for i in 0..(MAX_KNOWN_QUANTILES + 10) {
+            let dof = 1.0 + i as f64 / 8.0;
+            if i % 997 == 0 {
+                assert_eq!(student_t_quantile(0.9, dof).unwrap(), direct(0.9, dof));
+            } else {
+                student_t_quantile(0.9, dof).unwrap();
+            }
+        }
+        assert!(KNOWN_QUANTILES.with(|known| known.borrow().len()) <= MAX_KNOWN_QUANTILES);
+        assert_eq!(student_t_quantile(0.975, 4.0).unwrap(), direct(0.975, 4.0));
     }
 
     #[test]
