@@ -35,7 +35,6 @@ pub struct RunContext {
     /// Run entry hash.
     pub run_hash: EntryHash,
     /// The run record in force.
-    #[serde(skip)]
     pub run: Run,
     /// The adopted method (shared by every run that names the same adoption).
     #[serde(skip)]
