@@ -196,27 +196,20 @@ impl Store {
     }
 
     /// Calls `visit` for each entry with `seq >= from_seq` in order, one row in memory at a
-    /// time; stops early when `visit` returns `Ok(false)`.
+    /// time; stops early when `visit` returns `Ok(false)`. A row that does not form an entry is
+    /// an error here (replay uses [`Store::for_each_row`] to report it and go on).
     pub fn for_each_entry(
         &self,
         from_seq: u64,
         mut visit: impl FnMut(Entry) -> Result<bool>,
     ) -> Result<()> {
-        let sql = format!("SELECT {ENTRY_COLUMNS} FROM entries WHERE seq >= ?1 ORDER BY seq");
-        let mut statement = self
-            .conn
-            .prepare(&sql)
-            .map_err(storage("reading entries"))?;
-        let mut rows = statement
-            .query([from_seq as i64])
-            .map_err(storage("reading entries"))?;
-        while let Some(row) = rows.next().map_err(storage("reading entries"))? {
-            let entry = row_to_entry(row).map_err(storage("decoding an entry row"))?;
-            if !visit(entry)? {
-                break;
-            }
-        }
-        Ok(())
+        self.for_each_row(from_seq, |read| match read {
+            RowRead::Entry(entry) => visit(*entry),
+            RowRead::Malformed { seq, detail } => Err(LedgerError::Codec {
+                what: format!("the stored row of entry {seq}"),
+                reason: detail,
+            }),
+        })
     }
 
     /// Like [`Store::for_each_entry`], but a row whose columns cannot form an entry (wrong blob
