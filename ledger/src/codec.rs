@@ -28,7 +28,11 @@ pub fn encode<T: Serialize>(value: &T) -> Result<Vec<u8>, CodecError> {
 /// Decodes CBOR and insists that re-encoding the value yields the very same bytes.
 pub fn decode_exact<T: Serialize + DeserializeOwned>(bytes: &[u8]) -> Result<T, CodecError> {
     let value: T = serde_cbor::from_slice(bytes).map_err(|e| CodecError(e.to_string()))?;
-    let again = encode(&value)?;
+    // Re-encode into a buffer of the stored size (one allocation, no regrowth).
+    let mut again = Vec::with_capacity(bytes.len());
+    value
+        .serialize(&mut serde_cbor::Serializer::new(&mut again))
+        .map_err(|e| CodecError(e.to_string()))?;
     if again != bytes {
         return Err(CodecError(format!(
             "bytes are not in the one encoding of this record ({} bytes stored, {} when re-encoded)",
