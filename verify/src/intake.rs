@@ -345,9 +345,7 @@ pub fn draft(input: &Input, catalog: &Catalog, author: &str) -> Result<Draft, St
             capacity,
             minimum_weight,
         } => {
-            if catalog.find_id(Balance::KIND, &id).is_some() {
-                return Err(format!("a balance with id {id:?} is already recorded"));
-            }
+            unique(catalog, Balance::KIND, "balance", &id)?;
             done(
                 author,
                 Balance {

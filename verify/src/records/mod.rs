@@ -20,7 +20,7 @@ pub use statements::{
     StatedQuantity, StatedValue,
 };
 
-use assize_ledger::{codec, KindRule, KindRules, Record, Role, RoleSet, SignatureRule};
+use assize_ledger::{KindRule, KindRules, Record, Role, RoleSet, SignatureRule};
 
 /// A lab record that can check its own fields.
 pub trait LabRecord: Record {
@@ -79,32 +79,12 @@ pub fn all_kind_rules() -> KindRules {
 /// Decodes a body of a lab `kind` exactly and checks its fields; used for corrections, whose
 /// replacement content must itself be a valid record of the corrected kind.
 pub fn check_body(kind: &str, body: &[u8]) -> Result<(), String> {
-    fn one<R: LabRecord>(body: &[u8]) -> Result<(), String> {
-        let record: R =
-            codec::decode_exact(body).map_err(|e| format!("body does not decode: {e}"))?;
-        record.check()
+    if kind == Correction::KIND {
+        return Err("a correction cannot itself be corrected; correct the original again".into());
     }
-    match kind {
-        k if k == Adoption::KIND => one::<Adoption>(body),
-        k if k == Balance::KIND => one::<Balance>(body),
-        k if k == Calibration::KIND => one::<Calibration>(body),
-        k if k == BalanceCheck::KIND => one::<BalanceCheck>(body),
-        k if k == ReferenceLot::KIND => one::<ReferenceLot>(body),
-        k if k == Titrant::KIND => one::<Titrant>(body),
-        k if k == Sample::KIND => one::<Sample>(body),
-        k if k == Run::KIND => one::<Run>(body),
-        k if k == Weighing::KIND => one::<Weighing>(body),
-        k if k == Titration::KIND => one::<Titration>(body),
-        k if k == Replicate::KIND => one::<Replicate>(body),
-        k if k == Blank::KIND => one::<Blank>(body),
-        k if k == StatedValue::KIND => one::<StatedValue>(body),
-        k if k == ReportedResult::KIND => one::<ReportedResult>(body),
-        k if k == Invalidation::KIND => one::<Invalidation>(body),
-        k if k == OosInvestigation::KIND => one::<OosInvestigation>(body),
-        k if k == Correction::KIND => {
-            Err("a correction cannot itself be corrected; correct the original again".into())
-        }
-        other => Err(format!("{other:?} is not a lab record kind")),
+    match crate::catalog::LabBody::decode(kind, body)? {
+        Some(_) => Ok(()),
+        None => Err(format!("{kind:?} is not a lab record kind")),
     }
 }
 
@@ -146,7 +126,7 @@ pub fn check_positive(field: &str, text: &str) -> Result<rust_decimal::Decimal, 
 mod tests {
     use super::*;
     use crate::quantity::Reading;
-    use assize_ledger::{EntryHash, Timestamp};
+    use assize_ledger::{codec, EntryHash, Timestamp};
 
     fn h(tag: &[u8]) -> EntryHash {
         EntryHash::digest(tag)
