@@ -28,12 +28,19 @@ pub fn encode<T: Serialize>(value: &T) -> Result<Vec<u8>, CodecError> {
 /// Decodes CBOR and insists that re-encoding the value yields the very same bytes.
 pub fn decode_exact<T: Serialize + DeserializeOwned>(bytes: &[u8]) -> Result<T, CodecError> {
     let value: T = serde_cbor::from_slice(bytes).map_err(|e| CodecError(e.to_string()))?;
-    // Re-encode into a buffer of the stored size (one allocation, no regrowth).
-    let mut again = Vec::with_capacity(bytes.len());
-    value
-        .serialize(&mut serde_cbor::Serializer::new(&mut again))
-        .map_err(|e| CodecError(e.to_string()))?;
-    if again != bytes {
+    // Re-encode straight into a comparison with the stored bytes: nothing is allocated, and
+    // the first differing byte ends the encoding.
+    let mut compare = SameAs {
+        expected: bytes,
+        matched: 0,
+    };
+    let same = value
+        .serialize(&mut serde_cbor::Serializer::new(
+            serde_cbor::ser::IoWrite::new(&mut compare),
+        ))
+        .is_ok();
+    if !same || compare.matched != bytes.len() {
+        let again = encode(&value)?;
         return Err(CodecError(format!(
             "bytes are not in the one encoding of this record ({} bytes stored, {} when re-encoded)",
             bytes.len(),
@@ -41,6 +48,27 @@ pub fn decode_exact<T: Serialize + DeserializeOwned>(bytes: &[u8]) -> Result<T, 
         )));
     }
     Ok(value)
+}
+
+/// A writer that accepts only a prefix of `expected`, and counts how much of it has been written.
+struct SameAs<'a> {
+    expected: &'a [u8],
+    matched: usize,
+}
+
+impl std::io::Write for SameAs<'_> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        let rest = &self.expected[self.matched..];
+        if rest.len() < buf.len() || &rest[..buf.len()] != buf {
+            return Err(std::io::Error::other("differs from the stored bytes"));
+        }
+        self.matched += buf.len();
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
 }
 
 /// Renders CBOR bytes in the diagnostic notation of RFC 8949 section 8, for people reading an
