@@ -63,8 +63,85 @@ pub enum Command {
     Correct(CorrectArgs),
     /// Recompute a run from its raw records: each replicate, mean, RSD, uncertainty budget.
     Recompute(RecomputeArgs),
+    /// Validate: replay the chain, recompute every run, apply every rule, list the findings.
+    Replay(ReplayArgs),
+    /// List every finding code with its severity, basis and what the reviewer does.
+    Codes,
+    /// Everything a reviewer must look at for one run's result, and the report's SHA-256.
+    Exceptions(ExceptionsArgs),
+    /// Sign a run (or its result) as reviewed or approved (reviewer or QA).
+    Sign(SignArgs),
+    /// Summarize a period for the quality unit: rates, roles and keys, results to re-review.
+    Periodic(PeriodicArgs),
     /// Build the demo ledger from samples/ and verify it.
     Demo(DemoArgs),
+}
+
+/// `assize replay`
+#[derive(Debug, Args)]
+pub struct ReplayArgs {
+    /// Only this run (integrity findings are always shown).
+    #[arg(long, value_name = "RUN", conflicts_with = "sample")]
+    pub run: Option<String>,
+    /// Only the runs on this sample.
+    #[arg(long, value_name = "SAMPLE")]
+    pub sample: Option<String>,
+    /// Exit with 1 when a finding of this severity or above stands: blocking, review or periodic.
+    #[arg(long, value_name = "SEVERITY", default_value = "review")]
+    pub fail_on: String,
+    /// Signature-checking threads (0: one per core).
+    #[arg(long, default_value_t = 0)]
+    pub threads: usize,
+}
+
+/// `assize exceptions`
+#[derive(Debug, Args)]
+pub struct ExceptionsArgs {
+    /// Run id.
+    pub run: String,
+}
+
+/// `assize sign`
+#[derive(Debug, Args)]
+pub struct SignArgs {
+    /// Run id.
+    pub run: String,
+    /// What the signature means: reviewed or approved.
+    #[arg(long, value_name = "MEANING")]
+    pub meaning: String,
+    /// Sign the run's reported result rather than the run.
+    #[arg(long)]
+    pub result: bool,
+    /// A comment kept with the signature.
+    #[arg(long, default_value = "")]
+    pub comment: String,
+    /// Why approval is given while blocking findings stand (approval only).
+    #[arg(long, default_value = "")]
+    pub justification: String,
+    /// SHA-256 of the exception report you read (`assize exceptions` prints it); refused if
+    /// the report has changed since.
+    #[arg(long, value_name = "HEX")]
+    pub report_sha256: Option<String>,
+    /// Key file of the person signing.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize periodic`
+#[derive(Debug, Args)]
+pub struct PeriodicArgs {
+    /// First day of the period (YYYY-MM-DD, UTC).
+    #[arg(long, value_name = "DATE")]
+    pub from: String,
+    /// Last day of the period (YYYY-MM-DD, UTC), included.
+    #[arg(long, value_name = "DATE")]
+    pub to: String,
+    /// Seed of the random choice of results to re-review (the same seed picks the same results).
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// How many results to pick at random.
+    #[arg(long, default_value_t = 3)]
+    pub random: usize,
 }
 
 /// `assize adopt`

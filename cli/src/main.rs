@@ -1,8 +1,9 @@
 //! `assize` binary: parse the command line, run one command, print, choose the exit code.
 //!
-//! Exit codes (stable, documented in the README): 0 done / ledger intact; 2 integrity problems
-//! found; 3 the command line is wrong; 4 the command could not be carried out (bad input,
-//! refused entry, wrong passphrase, unreadable file). Code 1 is reserved for validator findings.
+//! Exit codes (stable, documented in the README): 0 done / ledger intact / no findings; 1 the
+//! validator found something at or above the chosen severity; 2 integrity problems found; 3 the
+//! command line is wrong; 4 the command could not be carried out (bad input, refused entry,
+//! wrong passphrase, unreadable file, unknown run).
 //! Only this crate writes to stdout or picks exit codes.
 
 mod args;
@@ -11,6 +12,7 @@ mod failure;
 mod output;
 mod passphrase;
 mod render;
+mod report;
 mod session;
 
 use clap::Parser;
@@ -23,8 +25,11 @@ pub enum Outcome {
     Clean,
     /// The ledger has integrity problems.
     IntegrityProblems,
+    /// The validator found something at or above the chosen severity.
+    Findings,
 }
 
+const EXIT_FINDINGS: u8 = 1;
 const EXIT_INTEGRITY: u8 = 2;
 const EXIT_USAGE: u8 = 3;
 const EXIT_FAILED: u8 = 4;
@@ -44,6 +49,7 @@ fn main() -> ExitCode {
     match commands::run(&cli) {
         Ok(Outcome::Clean) => ExitCode::SUCCESS,
         Ok(Outcome::IntegrityProblems) => ExitCode::from(EXIT_INTEGRITY),
+        Ok(Outcome::Findings) => ExitCode::from(EXIT_FINDINGS),
         Err(failure) if failure.is_closed_pipe() => ExitCode::SUCCESS,
         Err(failure) => {
             eprint!("{}", failure.render());

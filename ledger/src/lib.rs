@@ -34,7 +34,7 @@ pub use keyfile::{KdfCost, KeyFileInfo};
 pub use kinds::{KindRule, KindRules, Role, RoleSet, SignatureRule};
 pub use ledger::{Ledger, OpenMode};
 pub use records::Record;
-pub use registry::{Person, Registry};
+pub use registry::{AuthorityIssue, Person, Registry};
 pub use replay::{IntegrityReport, Problem, ReplayOptions};
 pub use signing::{PublicKey, Signer};
 pub use time::Timestamp;

@@ -10,8 +10,8 @@
 
 use crate::records::{
     check_body, Adoption, Balance, BalanceCheck, Blank, Calibration, Correction, Invalidation,
-    LabRecord, OosInvestigation, ReferenceLot, Replicate, ReportedResult, Run, Sample, StatedValue,
-    Titrant, Titration, Weighing,
+    LabRecord, OosInvestigation, ReferenceLot, Replicate, ReportedResult, Run, Sample, SignOff,
+    StatedValue, Titrant, Titration, Weighing,
 };
 use assize_ledger::store::Store;
 use assize_ledger::{
@@ -49,6 +49,7 @@ pub enum LabBody {
     Correction(Correction),
     Invalidation(Invalidation),
     Oos(OosInvestigation),
+    SignOff(SignOff),
 }
 
 impl LabBody {
@@ -81,6 +82,7 @@ impl LabBody {
             k if k == Correction::KIND => one(body, LabBody::Correction),
             k if k == Invalidation::KIND => one(body, LabBody::Invalidation),
             k if k == OosInvestigation::KIND => one(body, LabBody::Oos),
+            k if k == SignOff::KIND => one(body, LabBody::SignOff),
             _ => Ok(None),
         }
     }
@@ -194,6 +196,16 @@ impl Catalog {
         ledger: &Ledger,
         options: &ReplayOptions,
     ) -> Result<(IntegrityReport, Catalog), LedgerError> {
+        Catalog::from_replay_reporting(ledger, options, &mut |_| {})
+    }
+
+    /// [`Catalog::from_replay`], telling `progress` the sequence number of each batch of
+    /// entries the replay has walked (for a progress bar; called on the replay's thread).
+    pub fn from_replay_reporting(
+        ledger: &Ledger,
+        options: &ReplayOptions,
+        progress: &mut dyn FnMut(u64),
+    ) -> Result<(IntegrityReport, Catalog), LedgerError> {
         let stored = ledger.store().head()?.map_or(0, |head| head.seq);
         let mut catalog = Catalog::with_capacity(reserve_for(stored));
         let options = ReplayOptions {
@@ -215,8 +227,10 @@ impl Catalog {
             });
             let mut pending = Vec::with_capacity(ENTRIES_PER_HANDOFF);
             let report = ledger.replay_observed(&options, &mut |entry| {
+                let seq = entry.seq;
                 pending.push(entry);
                 if pending.len() == ENTRIES_PER_HANDOFF {
+                    progress(seq);
                     let full =
                         std::mem::replace(&mut pending, Vec::with_capacity(ENTRIES_PER_HANDOFF));
                     // The decoder receives until the sender is dropped, so this cannot fail.
@@ -231,6 +245,19 @@ impl Catalog {
             };
             Ok((report?, catalog))
         })
+    }
+
+    /// A catalog of only `entries` (taken in sequence order), e.g. what one result depends
+    /// on; corrections are in it only if they are among `entries`.
+    pub fn subset<'a>(&self, entries: impl IntoIterator<Item = &'a CatalogEntry>) -> Catalog {
+        let mut chosen: Vec<&CatalogEntry> = entries.into_iter().collect();
+        chosen.sort_by_key(|e| e.seq);
+        chosen.dedup_by_key(|e| e.seq);
+        let mut subset = Catalog::with_capacity(chosen.len());
+        for entry in chosen {
+            subset.insert(Prepared::Lab(entry.clone()));
+        }
+        subset
     }
 
     /// Adds one ledger entry (entries must come in sequence order).

@@ -229,6 +229,9 @@ pub fn correction_draft(
     if changes.is_empty() {
         return Err("give at least one field to change".into());
     }
+    if reason.trim().is_empty() {
+        return Err("a correction needs its reason: say why the value changes".into());
+    }
     let current = catalog.current(&original).ok_or("the entry has no body")?;
     let replacement = apply(&entry.kind, current, changes)?;
     let correction = Correction {

@@ -99,6 +99,10 @@ pub struct AssaySpec {
     pub portion_g: String,
     /// Whether a blank titration is subtracted.
     pub blank: bool,
+    /// Repeatability standard deviation of the assay, percent of the value (from the method's
+    /// validation), for the ISO 5725-6 critical range; the check is skipped when not stated.
+    #[serde(default)]
+    pub repeatability_rsd_percent: Option<String>,
 }
 
 /// Rounding rules a specification can name.
@@ -111,6 +115,8 @@ pub enum SpecRounding {
     AstmE29Rounding,
     /// ASTM E29 absolute method: no rounding.
     AstmE29Absolute,
+    /// Half up to the significant figures of the limit as written (Ph. Eur. practice).
+    SignificantFigures,
 }
 
 /// The specification a reported result is judged against.
@@ -137,8 +143,19 @@ impl Specification {
             SpecRounding::UspHalfUp => RoundingRule::HalfUp { places },
             SpecRounding::AstmE29Rounding => RoundingRule::HalfEven { places },
             SpecRounding::AstmE29Absolute => RoundingRule::Absolute,
+            SpecRounding::SignificantFigures => RoundingRule::SignificantFigures {
+                figures: significant_figures_as_written(limit),
+            },
         }
     }
+}
+
+/// Significant figures of a number as written: every digit after the leading zeros, so
+/// `"29.0"` has 3 and `"0.050"` has 2 (trailing zeros of a whole number count).
+pub fn significant_figures_as_written(text: &str) -> u32 {
+    let digits: String = text.trim().chars().filter(char::is_ascii_digit).collect();
+    let significant = digits.trim_start_matches('0').len() as u32;
+    significant.max(1)
 }
 
 /// A titration method: standardization of the titrant and the assay that uses it.
@@ -163,6 +180,10 @@ pub struct Method {
     pub assay: AssaySpec,
     /// The specification.
     pub specification: Specification,
+    /// Whether balance readings are expected to be captured from the instrument (a keyed
+    /// reading is then flagged for the reviewer); false when not stated.
+    #[serde(default)]
+    pub readings_captured: bool,
 }
 
 /// Stoichiometric coefficients read from a method's balanced equations.
@@ -349,6 +370,22 @@ pub struct TitrantPolicy {
 pub struct RecordsPolicy {
     /// Largest delay between observing and recording, minutes.
     pub contemporaneous_window_minutes: u32,
+    /// How far an observation may be timed after the entry recording it (instrument and
+    /// computer clocks differ), seconds; 60 when not stated.
+    #[serde(default = "default_clock_tolerance")]
+    pub clock_tolerance_seconds: u32,
+    /// Most readings of one run that may share one time stamp before it looks back-filled;
+    /// 3 when not stated.
+    #[serde(default = "default_readings_per_timestamp")]
+    pub max_readings_per_timestamp: u32,
+}
+
+fn default_clock_tolerance() -> u32 {
+    60
+}
+
+fn default_readings_per_timestamp() -> u32 {
+    3
 }
 
 /// Replicate agreement rules.

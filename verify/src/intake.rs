@@ -617,6 +617,12 @@ pub fn draft(input: &Input, catalog: &Catalog, author: &str) -> Result<Draft, St
             replicate,
             cause,
         } => {
+            if cause.trim().is_empty() {
+                return Err(
+                    "an invalidation needs its assignable cause: what went wrong at the bench"
+                        .into(),
+                );
+            }
             let run_hash = run_of(&run)?;
             let found = run_entries(catalog, &run_hash)
                 .filter(|(_, b)| matches!(b, LabBody::Replicate(r) if r.number == replicate))

@@ -13,15 +13,23 @@
 pub mod assemble;
 pub mod catalog;
 pub mod chem;
+pub mod conformance;
 pub mod correction;
 pub mod documents;
+pub mod exceptions;
+pub mod findings;
 pub mod intake;
+pub mod outliers;
+pub mod periodic;
 pub mod quantity;
 pub mod recompute;
 pub mod records;
 pub mod rounding;
+pub mod rules;
+pub mod signoff;
 pub mod stats;
 pub mod uncertainty;
+pub mod validate;
 
 use assize_ledger::KindRules;
 

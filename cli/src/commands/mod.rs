@@ -8,8 +8,11 @@ mod entries;
 mod key;
 mod lab;
 mod note;
+mod periodic;
 mod person;
 mod recompute;
+mod replay;
+mod review;
 mod verify;
 
 use crate::args::{Cli, Command};
@@ -31,6 +34,11 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Import(args) => lab::import(cli, args),
         Command::Correct(args) => lab::correct(cli, args),
         Command::Recompute(args) => recompute::run(cli, args),
+        Command::Replay(args) => replay::run(cli, args),
+        Command::Codes => replay::codes(cli),
+        Command::Exceptions(args) => review::exceptions(cli, args),
+        Command::Sign(args) => review::sign(cli, args),
+        Command::Periodic(args) => periodic::run(cli, args),
         Command::Demo(args) => demo::run(cli, args),
     }
 }

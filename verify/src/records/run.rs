@@ -82,7 +82,7 @@ impl LabRecord for Run {
 }
 
 /// What was weighed.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Portion {
     /// Primary standard (standardization).

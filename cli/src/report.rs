@@ -1,0 +1,333 @@
+//! Text views of the validator's results: the replay summary and findings, the code table,
+//! the exception report and a recorded sign-off. Nothing here decides anything.
+
+use assize_ledger::Entry;
+use assize_verify::exceptions::ExceptionReport;
+use assize_verify::findings::{Finding, Severity, RULES};
+use assize_verify::records::SignOff;
+use assize_verify::validate::{Scope, Validation};
+use comfy_table::presets::UTF8_FULL_CONDENSED;
+use comfy_table::{ContentArrangement, Table};
+use std::collections::BTreeMap;
+
+fn table(header: &[&str]) -> Table {
+    let mut t = Table::new();
+    t.load_style(UTF8_FULL_CONDENSED)
+        .set_content_arrangement(ContentArrangement::Dynamic)
+        .set_width(120)
+        .set_header(header.iter().copied());
+    t
+}
+
+fn entries_cell(finding: &Finding) -> String {
+    let seqs: Vec<String> = finding.entries.iter().map(|e| e.seq.to_string()).collect();
+    if seqs.len() > 6 {
+        format!("{} … ({} entries)", seqs[..5].join(", "), seqs.len())
+    } else {
+        seqs.join(", ")
+    }
+}
+
+/// The findings as a table, then what to do for each code present.
+pub fn findings_text(findings: &[Finding]) -> String {
+    if findings.is_empty() {
+        return "no findings".into();
+    }
+    let mut t = table(&["code", "severity", "run", "entries", "finding"]);
+    for f in findings {
+        t.add_row(vec![
+            f.code.text().to_string(),
+            f.severity.name().to_string(),
+            f.run.clone().unwrap_or_else(|| "-".into()),
+            entries_cell(f),
+            format!("{}\n({})", f.message, f.clause),
+        ]);
+    }
+    let mut actions: BTreeMap<&str, &str> = BTreeMap::new();
+    for f in findings {
+        actions.insert(f.code.text(), f.action);
+    }
+    let mut text = t.to_string();
+    text.push_str("\n\nwhat to do:\n");
+    for (code, action) in actions {
+        text.push_str(&format!("  {code}  {action}\n"));
+    }
+    text
+}
+
+/// `assize replay` for people.
+pub fn validation_text(v: &Validation) -> String {
+    let mut text = String::new();
+    let scope = match &v.scope {
+        Scope::Ledger => "every run".to_string(),
+        Scope::Run(id) => format!("run {id}"),
+        Scope::Sample(id) => format!("sample {id}"),
+    };
+    let head = v.head.map_or("empty".to_string(), |h| {
+        format!("entry {} ({})", h.seq, &h.hash.to_hex()[..16])
+    });
+    text.push_str(&format!(
+        "replayed {} entries up to {head}; chain {}; scope: {scope}\n\n",
+        v.integrity.entries,
+        if v.integrity.intact() {
+            "intact"
+        } else {
+            "NOT INTACT"
+        }
+    ));
+    if v.runs.is_empty() {
+        text.push_str("no runs\n\n");
+    } else {
+        let mut t = table(&[
+            "run",
+            "kind",
+            "sample",
+            "method",
+            "recomputed result",
+            "spec",
+            "blocking",
+            "review",
+        ]);
+        for r in &v.runs {
+            t.add_row(vec![
+                r.run.clone(),
+                format!("{:?}", r.kind).to_lowercase(),
+                r.sample.clone().unwrap_or_else(|| "-".into()),
+                r.method.clone(),
+                r.result
+                    .clone()
+                    .unwrap_or_else(|| "cannot recompute".into()),
+                match r.conforms {
+                    Some(true) => "conforms".into(),
+                    Some(false) => "FAILS".into(),
+                    None => "-".into(),
+                },
+                r.findings.blocking.to_string(),
+                r.findings.review.to_string(),
+            ]);
+        }
+        text.push_str(&t.to_string());
+        text.push_str("\n\n");
+    }
+    text.push_str(&findings_text(&v.findings));
+    text.push_str(&format!(
+        "\n{} blocking, {} for review, {} periodic\n",
+        v.tally.blocking, v.tally.review, v.tally.periodic
+    ));
+    text
+}
+
+/// `assize codes` for people.
+pub fn codes_text() -> String {
+    let mut t = table(&["code", "severity", "what it catches", "basis"]);
+    for rule in RULES {
+        t.add_row(vec![
+            rule.code,
+            rule.severity.name(),
+            rule.title,
+            rule.basis,
+        ]);
+    }
+    format!("{t}\n\nFINDINGS.md in the project documents each code with what the reviewer does.")
+}
+
+/// `assize exceptions` for people.
+pub fn exceptions_text(r: &ExceptionReport) -> String {
+    let mut text = format!(
+        "exception report: run {}{}\nmethod {} · policy {} · ledger head entry {} ({}) · chain {}\nanalysts: {}\nrecomputed: {} · reported: {}\n\n",
+        r.run,
+        r.sample.as_ref().map_or(String::new(), |s| format!(" (sample {s})")),
+        r.method,
+        r.policy,
+        r.head_seq,
+        &r.head_hash[..16.min(r.head_hash.len())],
+        if r.chain_intact { "intact" } else { "NOT INTACT" },
+        r.analysts.join(", "),
+        r.recomputed.as_deref().unwrap_or("cannot recompute"),
+        r.reported.as_deref().unwrap_or("not reported"),
+    );
+    text.push_str("findings\n");
+    text.push_str(&findings_text(&r.findings));
+    text.push('\n');
+    text.push_str("corrections\n");
+    if r.corrections.is_empty() {
+        text.push_str("none\n");
+    } else {
+        let mut t = table(&[
+            "entry", "corrects", "kind", "by", "signed", "reason", "changes",
+        ]);
+        for c in &r.corrections {
+            let changes: Vec<String> = c
+                .changes
+                .iter()
+                .map(|f| format!("{}: {} → {}", f.field, f.old, f.new))
+                .collect();
+            t.add_row(vec![
+                c.entry.seq.to_string(),
+                c.corrects.to_string(),
+                c.kind.clone(),
+                c.author.clone(),
+                if c.signed { "yes".into() } else { "NO".into() },
+                if c.reason.trim().is_empty() {
+                    "(none given)".into()
+                } else {
+                    c.reason.clone()
+                },
+                changes.join("\n"),
+            ]);
+        }
+        text.push_str(&t.to_string());
+        text.push('\n');
+    }
+    text.push_str("\nreadings keyed by hand\n");
+    if r.manual_entries.is_empty() {
+        text.push_str("none\n");
+    } else {
+        let mut t = table(&["entry", "replicate", "portion", "readings", "by"]);
+        for m in &r.manual_entries {
+            t.add_row(vec![
+                m.entry.seq.to_string(),
+                m.replicate.to_string(),
+                m.portion.clone(),
+                m.readings.clone(),
+                m.author.clone(),
+            ]);
+        }
+        text.push_str(&t.to_string());
+        text.push('\n');
+    }
+    let late: Vec<String> = r.late_entries.iter().map(|e| e.seq.to_string()).collect();
+    text.push_str(&format!(
+        "\nlate entries: {}\n",
+        if late.is_empty() {
+            "none".into()
+        } else {
+            late.join(", ")
+        }
+    ));
+    text.push_str("\ninvalidated replicates\n");
+    if r.invalidations.is_empty() {
+        text.push_str("none\n");
+    } else {
+        for i in &r.invalidations {
+            text.push_str(&format!(
+                "  replicate {} (entry {}) by {}: {}\n",
+                i.replicate, i.entry.seq, i.author, i.cause
+            ));
+        }
+    }
+    text.push_str("\nsign-offs\n");
+    if r.sign_offs.is_empty() {
+        text.push_str("none yet\n");
+    } else {
+        for s in &r.sign_offs {
+            text.push_str(&format!(
+                "  {} by {} at {} (entry {}, based on entry {}){}{}\n",
+                s.meaning,
+                s.signer,
+                s.recorded,
+                s.entry.seq,
+                s.based_on_seq,
+                if s.comment.is_empty() {
+                    String::new()
+                } else {
+                    format!(": {}", s.comment)
+                },
+                if s.justification.is_empty() {
+                    String::new()
+                } else {
+                    format!(" — justification: {}", s.justification)
+                },
+            ));
+        }
+    }
+    let blocking = r
+        .findings
+        .iter()
+        .filter(|f| f.severity == Severity::Blocking)
+        .count();
+    text.push_str(&format!(
+        "\nreport SHA-256 {}\n{}\n",
+        r.sha256(),
+        if blocking > 0 {
+            format!("{blocking} blocking finding(s): approval needs them resolved or a recorded justification")
+        } else {
+            "no blocking findings".to_string()
+        }
+    ));
+    text
+}
+
+/// A recorded sign-off for people.
+pub fn signed_text(entry: &Entry, s: &SignOff, report: &ExceptionReport) -> String {
+    format!(
+        "entry {} recorded: run {} {} by {} at {}\nbased on ledger entry {} ({}); exception report SHA-256 {}{}",
+        entry.seq,
+        report.run,
+        s.meaning.name(),
+        entry.author,
+        entry.record_time,
+        s.based_on_seq,
+        &s.based_on.to_hex()[..16],
+        s.report_sha256.as_deref().unwrap_or("-"),
+        if s.justification.is_empty() {
+            String::new()
+        } else {
+            format!("\njustification recorded: {}", s.justification)
+        }
+    )
+}
+
+/// `assize periodic` for people.
+pub fn periodic_text(p: &assize_verify::periodic::PeriodicReview) -> String {
+    let mut text = format!(
+        "periodic review {} to {}: {} runs\n\n",
+        p.from, p.to, p.runs
+    );
+    for (title, rows) in [
+        ("per analyst", &p.by_analyst),
+        ("per method", &p.by_method),
+        ("per balance", &p.by_balance),
+    ] {
+        let mut t = table(&[
+            title,
+            "runs",
+            "corrections",
+            "invalidations",
+            "late entries",
+            "retests",
+        ]);
+        for r in rows.iter().chain(std::iter::once(&p.lab)) {
+            t.add_row(vec![
+                r.name.clone(),
+                r.runs.to_string(),
+                r.corrections.to_string(),
+                r.invalidations.to_string(),
+                r.late_entries.to_string(),
+                r.retests.to_string(),
+            ]);
+        }
+        text.push_str(&t.to_string());
+        text.push_str("\n\n");
+    }
+    let mut t = table(&["person", "name", "roles held", "keys usable"]);
+    for h in &p.people {
+        t.add_row(vec![
+            h.person.clone(),
+            h.name.clone(),
+            h.roles.join("\n"),
+            h.keys.join("\n"),
+        ]);
+    }
+    text.push_str(&t.to_string());
+    text.push_str("\n\nto re-review\n");
+    for pick in p.random_sample.iter().chain(&p.targeted_sample) {
+        text.push_str(&format!("  {}: {}\n", pick.run, pick.reason));
+    }
+    if p.random_sample.is_empty() && p.targeted_sample.is_empty() {
+        text.push_str("  no runs in the period\n");
+    }
+    text.push('\n');
+    text.push_str(&findings_text(&p.findings));
+    text
+}

@@ -1,0 +1,368 @@
+//! The validation rules of DESIGN.md §6: each area is a small module that reads the
+//! [`Evidence`] and pushes [`Finding`]s.
+//!
+//! [`Evidence`] is built once per validation: the catalog, every adopted method and policy
+//! parsed once, and one [`RunView`] per run with its entries, its sample and its recomputed
+//! outcome. A record is judged by the documents in force when it was recorded: a run by the
+//! method and policy it names (and `ORD-06` checks those were the versions in force), any
+//! other record by the policy adopted most recently before it.
+
+pub mod arithmetic;
+pub mod balances;
+pub mod capture;
+pub mod changes;
+pub mod completeness;
+pub mod duties;
+pub mod integrity;
+pub mod materials;
+pub mod order;
+pub mod out_of_spec;
+pub mod patterns;
+pub mod replicates;
+pub mod timeliness;
+
+use crate::assemble::{recompute_every_run, Recomputed};
+use crate::catalog::{Catalog, CatalogEntry, LabBody};
+use crate::documents::{LabPolicy, Method};
+use crate::findings::{EntryRef, Finding};
+use crate::records::{DocumentKind, Replicate, Run, RunKind, Sample, SignOff, Weighing};
+use assize_ledger::Record;
+use assize_ledger::{EntryHash, Timestamp};
+use rust_decimal::prelude::ToPrimitive;
+use rust_decimal::Decimal;
+use std::collections::{BTreeSet, HashMap};
+use std::str::FromStr;
+use std::sync::Arc;
+
+/// An adopted method or policy, parsed once.
+#[derive(Clone, Debug)]
+pub struct Adopted {
+    /// Adoption entry.
+    pub at: EntryRef,
+    /// Method or policy.
+    pub document: DocumentKind,
+    /// Document id.
+    pub id: String,
+    /// `id vVERSION`, as findings name it.
+    pub label: String,
+    /// The method, when it is one and parses.
+    pub method: Option<Arc<Method>>,
+    /// The policy, when it is one and parses.
+    pub policy: Option<Arc<LabPolicy>>,
+}
+
+/// One run with everything the rules look at.
+pub struct RunView<'a> {
+    /// The run entry.
+    pub entry: &'a CatalogEntry,
+    /// The run record in force.
+    pub run: Run,
+    /// The adopted method it names, if that parses.
+    pub method: Option<Arc<Adopted>>,
+    /// The adopted policy it names, if that parses.
+    pub policy: Option<Arc<Adopted>>,
+    /// The sample entry and record (assays).
+    pub sample: Option<(&'a CatalogEntry, Sample)>,
+    /// Entries that belong to the run, in sequence order.
+    pub entries: Vec<&'a CatalogEntry>,
+    /// The recomputed outcome, or why it cannot be recomputed.
+    pub recomputed: Result<Recomputed, String>,
+}
+
+impl RunView<'_> {
+    /// Run id.
+    pub fn id(&self) -> &str {
+        &self.run.id
+    }
+
+    /// Sample id (assays).
+    pub fn sample_id(&self) -> Option<&str> {
+        self.sample.as_ref().map(|(_, s)| s.id.as_str())
+    }
+
+    /// The method, if the run names a method that parses.
+    pub fn method(&self) -> Option<&Method> {
+        self.method.as_ref().and_then(|m| m.method.as_deref())
+    }
+
+    /// The policy, if the run names a policy that parses.
+    pub fn policy(&self) -> Option<&LabPolicy> {
+        self.policy.as_ref().and_then(|p| p.policy.as_deref())
+    }
+
+    /// `id vVERSION` of the policy, for clauses.
+    pub fn policy_label(&self) -> &str {
+        self.policy
+            .as_ref()
+            .map_or("the lab policy", |p| p.label.as_str())
+    }
+
+    /// `id vVERSION` of the method, for clauses.
+    pub fn method_label(&self) -> &str {
+        self.method
+            .as_ref()
+            .map_or("the method", |m| m.label.as_str())
+    }
+
+    /// A finding about this run.
+    pub fn finding(&self, finding: Finding) -> Finding {
+        finding
+            .about_run(Some(self.id()), self.sample_id())
+            .involving([entry_ref(self.entry)])
+    }
+}
+
+/// Everything a validation looks at.
+pub struct Evidence<'a> {
+    /// The lab entries.
+    pub catalog: &'a Catalog,
+    /// Adopted documents by adoption entry.
+    pub adopted: HashMap<EntryHash, Arc<Adopted>>,
+    /// Policy adoptions in sequence order.
+    pub policies: Vec<EntryHash>,
+    /// One view per run, in sequence order.
+    pub runs: Vec<RunView<'a>>,
+    run_index: HashMap<EntryHash, usize>,
+}
+
+impl<'a> Evidence<'a> {
+    /// Parses the adopted documents and recomputes every run (on all cores).
+    pub fn gather(catalog: &'a Catalog) -> Evidence<'a> {
+        let recomputed = recompute_every_run(catalog, 0, |_, result| result);
+        Evidence::with_recomputed(catalog, recomputed)
+    }
+
+    /// Builds the evidence from runs already recomputed (each run's entry with its result).
+    pub fn with_recomputed(
+        catalog: &'a Catalog,
+        recomputed: Vec<(EntryHash, Result<Recomputed, String>)>,
+    ) -> Evidence<'a> {
+        let mut adopted = HashMap::new();
+        let mut policies = Vec::new();
+        for entry in catalog.of_kind("lab.adopt") {
+            let LabBody::Adoption(a) = catalog.current_of(entry).into_owned() else {
+                continue;
+            };
+            let (method, policy) = match a.document {
+                DocumentKind::Method => (Method::parse(&a.text).ok().map(Arc::new), None),
+                DocumentKind::Policy => (None, LabPolicy::parse(&a.text).ok().map(Arc::new)),
+            };
+            if a.document == DocumentKind::Policy {
+                policies.push(entry.hash);
+            }
+            adopted.insert(
+                entry.hash,
+                Arc::new(Adopted {
+                    at: entry_ref(entry),
+                    document: a.document,
+                    label: format!("{} v{}", a.id, a.version),
+                    id: a.id,
+                    method,
+                    policy,
+                }),
+            );
+        }
+        let mut evidence = Evidence {
+            catalog,
+            adopted,
+            policies,
+            runs: Vec::new(),
+            run_index: HashMap::new(),
+        };
+        let mut results: HashMap<EntryHash, Result<Recomputed, String>> =
+            recomputed.into_iter().collect();
+        let mut runs = Vec::new();
+        for entry in catalog.of_kind(Run::KIND) {
+            let LabBody::Run(run) = catalog.current_of(entry).into_owned() else {
+                continue;
+            };
+            let sample = run.sample.and_then(|hash| {
+                let entry = catalog.entry(&hash)?;
+                match catalog.current_of(entry).into_owned() {
+                    LabBody::Sample(s) => Some((entry, s)),
+                    _ => None,
+                }
+            });
+            let recomputed = results
+                .remove(&entry.hash)
+                .unwrap_or_else(|| Err(format!("run {} was not recomputed", run.id)));
+            runs.push((entry, run, sample, recomputed));
+        }
+        for (entry, run, sample, recomputed) in runs {
+            let view = RunView {
+                entry,
+                method: evidence
+                    .adopted
+                    .get(&run.method)
+                    .filter(|a| a.method.is_some())
+                    .cloned(),
+                policy: evidence
+                    .adopted
+                    .get(&run.policy)
+                    .filter(|a| a.policy.is_some())
+                    .cloned(),
+                sample,
+                entries: catalog.of_run(&entry.hash),
+                recomputed,
+                run,
+            };
+            evidence.run_index.insert(entry.hash, evidence.runs.len());
+            evidence.runs.push(view);
+        }
+        evidence
+    }
+
+    /// The view of the run recorded at `hash`.
+    pub fn run(&self, hash: &EntryHash) -> Option<&RunView<'a>> {
+        self.run_index.get(hash).map(|i| &self.runs[*i])
+    }
+
+    /// The policy adopted most recently before entry `seq`.
+    pub fn policy_before(&self, seq: u64) -> Option<&Adopted> {
+        self.policies
+            .iter()
+            .rev()
+            .filter_map(|h| self.adopted.get(h))
+            .find(|a| a.at.seq < seq && a.policy.is_some())
+            .map(|a| a.as_ref())
+    }
+
+    /// A reference to the entry stored under `hash`, if the catalog has it.
+    pub fn entry_ref(&self, hash: &EntryHash) -> Option<EntryRef> {
+        self.catalog.entry(hash).map(entry_ref)
+    }
+
+    /// The run an entry belongs to, directly or through what it supersedes or invalidates.
+    pub fn run_of_entry(&self, entry: &CatalogEntry) -> Option<&RunView<'a>> {
+        let body = self.catalog.current_of(entry);
+        if let Some(run) = body.run() {
+            return self.run(&run);
+        }
+        match body.as_ref() {
+            LabBody::Run(_) => self.run(&entry.hash),
+            LabBody::Correction(c) => self
+                .catalog
+                .entry(&c.supersedes)
+                .and_then(|e| self.run_of_entry(e)),
+            LabBody::Invalidation(i) => self
+                .catalog
+                .entry(&i.replicate)
+                .and_then(|e| self.run_of_entry(e)),
+            _ => None,
+        }
+    }
+
+    /// The data entries a sign-off on `subject` covers: for a run, the run, its entries,
+    /// their corrections and the invalidations of its replicates; for a result, the same for
+    /// its run plus the result; for anything else, the entry and its corrections.
+    pub fn covered_by(&self, subject: &EntryHash) -> Vec<&'a CatalogEntry> {
+        let catalog = self.catalog;
+        let Some(entry) = catalog.entry(subject) else {
+            return Vec::new();
+        };
+        let mut covered: Vec<&'a CatalogEntry> = vec![entry];
+        let run = match catalog.current_of(entry).as_ref() {
+            LabBody::Run(_) => Some(entry.hash),
+            LabBody::Result(r) => Some(r.run),
+            _ => None,
+        };
+        if let Some(run) = run.and_then(|h| self.run(&h)) {
+            covered.push(run.entry);
+            for e in &run.entries {
+                if e.kind != SignOff::KIND {
+                    covered.push(e);
+                }
+                if e.kind == Replicate::KIND {
+                    covered.extend(catalog.invalidations_of(&e.hash));
+                }
+            }
+        }
+        let mut with_corrections = covered.clone();
+        for e in &covered {
+            with_corrections.extend(catalog.corrections_of(&e.hash));
+        }
+        with_corrections.sort_by_key(|e| e.seq);
+        with_corrections.dedup_by_key(|e| e.seq);
+        with_corrections
+    }
+
+    /// Who authored the data of a run: the run entry, its weighings, titrations, replicates,
+    /// blanks, stated values and results, and corrections of any of them.
+    pub fn analysts_of(&self, run: &RunView<'_>) -> BTreeSet<String> {
+        let mut authors = BTreeSet::from([run.entry.author.clone()]);
+        for e in run.entries.iter().chain(std::iter::once(&run.entry)) {
+            authors.insert(e.author.clone());
+            for c in self.catalog.corrections_of(&e.hash) {
+                authors.insert(c.author.clone());
+            }
+        }
+        authors
+    }
+}
+
+/// A reference to a catalog entry.
+pub fn entry_ref(entry: &CatalogEntry) -> EntryRef {
+    EntryRef {
+        seq: entry.seq,
+        hash: entry.hash,
+    }
+}
+
+/// Parses a decimal setting of a policy or method (already checked when it was adopted).
+pub fn setting(text: &str) -> Option<Decimal> {
+    Decimal::from_str(text.trim()).ok()
+}
+
+/// A decimal setting as `f64`.
+pub fn setting_f64(text: &str) -> Option<f64> {
+    setting(text).and_then(|d| d.to_f64())
+}
+
+/// The UTC calendar day of a time stamp.
+pub fn day_of(at: Timestamp) -> chrono::NaiveDate {
+    at.to_datetime().date_naive()
+}
+
+/// A time stamp as shown in findings.
+pub fn when(at: Timestamp) -> String {
+    at.to_datetime().format("%Y-%m-%d %H:%M UTC").to_string()
+}
+
+/// Weighings of a run, current bodies, with their entries.
+pub fn weighings_of<'a>(
+    catalog: &'a Catalog,
+    run: &RunView<'a>,
+) -> Vec<(&'a CatalogEntry, Weighing)> {
+    run.entries
+        .iter()
+        .filter(|e| e.kind == Weighing::KIND)
+        .filter_map(|e| match catalog.current_of(e).into_owned() {
+            LabBody::Weighing(w) => Some((*e, w)),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Whether a run is an assay.
+pub fn is_assay(run: &RunView<'_>) -> bool {
+    run.run.kind == RunKind::Assay
+}
+
+/// Applies every rule and returns the findings, sorted.
+pub fn evaluate(evidence: &Evidence<'_>) -> Vec<Finding> {
+    let mut findings = Vec::new();
+    arithmetic::check(evidence, &mut findings);
+    completeness::check(evidence, &mut findings);
+    out_of_spec::check(evidence, &mut findings);
+    balances::check(evidence, &mut findings);
+    capture::check(evidence, &mut findings);
+    materials::check(evidence, &mut findings);
+    duties::check(evidence, &mut findings);
+    order::check(evidence, &mut findings);
+    replicates::check(evidence, &mut findings);
+    timeliness::check(evidence, &mut findings);
+    changes::check(evidence, &mut findings);
+    patterns::check(evidence, &mut findings);
+    crate::findings::sort(&mut findings);
+    findings
+}

@@ -1,0 +1,99 @@
+//! Suspicious patterns (`PAT-*`): replicates of one run with identical raw readings, and one
+//! raw reading pair appearing in more than one run. Neither proves anything; both are worth a
+//! look at the balance printout.
+
+use super::{entry_ref, weighings_of, Evidence};
+use crate::catalog::CatalogEntry;
+use crate::findings::{Code, Finding};
+use crate::records::{Portion, Weighing};
+use assize_ledger::EntryHash;
+use std::collections::HashMap;
+
+/// What makes two weighings look like the same observation: balance, both readings, unit.
+type Fingerprint = (EntryHash, String, String, String);
+
+/// The fingerprint of a weighing.
+fn fingerprint(w: &Weighing) -> Fingerprint {
+    (
+        w.balance,
+        w.first.value.clone(),
+        w.second.value.clone(),
+        w.first.unit.to_string(),
+    )
+}
+
+/// Pushes the pattern findings.
+pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
+    let mut seen: HashMap<Fingerprint, Vec<(usize, &CatalogEntry, Portion)>> = HashMap::new();
+    for (index, run) in evidence.runs.iter().enumerate() {
+        let weighings = weighings_of(evidence.catalog, run);
+        // Identical readings between different replicates of the run.
+        let mut within: HashMap<(Portion, Fingerprint), Vec<(&CatalogEntry, u32)>> = HashMap::new();
+        for (entry, w) in &weighings {
+            within
+                .entry((w.portion, fingerprint(w)))
+                .or_default()
+                .push((entry, w.replicate));
+            seen.entry(fingerprint(w))
+                .or_default()
+                .push((index, entry, w.portion));
+        }
+        let mut groups: Vec<Vec<(&CatalogEntry, u32)>> = within
+            .into_values()
+            .filter(|list| {
+                let mut replicates: Vec<u32> = list.iter().map(|(_, r)| *r).collect();
+                replicates.sort_unstable();
+                replicates.dedup();
+                replicates.len() > 1
+            })
+            .collect();
+        groups.sort_by_key(|g| g[0].0.seq);
+        for group in groups {
+            let numbers: Vec<String> = group.iter().map(|(_, r)| r.to_string()).collect();
+            out.push(
+                run.finding(Finding::new(
+                    Code::IdenticalReplicates,
+                    format!(
+                        "replicates {} of run {} show identical raw readings",
+                        numbers.join(", "),
+                        run.id()
+                    ),
+                    "independent portions rarely read alike to the last digit",
+                ))
+                .involving(group.iter().map(|(e, _)| entry_ref(e))),
+            );
+        }
+    }
+    let mut reused: Vec<Vec<(usize, &CatalogEntry, Portion)>> = seen
+        .into_values()
+        .filter(|list| {
+            let mut runs: Vec<usize> = list.iter().map(|(r, _, _)| *r).collect();
+            runs.sort_unstable();
+            runs.dedup();
+            runs.len() > 1
+        })
+        .collect();
+    reused.sort_by_key(|list| list[0].1.seq);
+    for list in reused {
+        let later = list.last().expect("at least two");
+        let run = &evidence.runs[later.0];
+        let others: Vec<&str> = list
+            .iter()
+            .filter(|(r, _, _)| *r != later.0)
+            .map(|(r, _, _)| evidence.runs[*r].id())
+            .collect();
+        out.push(
+            run.finding(Finding::new(
+                Code::ReadingReused,
+                format!(
+                    "run {} has a weighing (entry {}) with the same balance and readings as run {}",
+                    run.id(),
+                    later.1.seq,
+                    others.join(", ")
+                ),
+                "one observation belongs to one sample",
+            ))
+            .involving(list.iter().map(|(_, e, _)| entry_ref(e))),
+        );
+    }
+}

@@ -1,0 +1,117 @@
+//! Timeliness findings (`TIM-*`): entries recorded later than the policy's contemporaneous
+//! window after what they record, and many readings of one run sharing one time stamp.
+//! Captured readings are exempt from the window: the instrument's own record is the original,
+//! whenever it is imported.
+
+use super::{entry_ref, when, Evidence};
+use crate::catalog::{CatalogEntry, LabBody};
+use crate::findings::{Code, Finding};
+use crate::records::{BalanceCheck, Source};
+use assize_ledger::Record;
+use assize_ledger::Timestamp;
+use std::collections::HashMap;
+
+const MINUTE_MICROS: i64 = 60_000_000;
+
+/// What an entry observed and when, if it is a bench observation typed by a person.
+fn keyed_observation(body: &LabBody) -> Option<Timestamp> {
+    match body {
+        LabBody::Weighing(w) if w.source == Source::Keyed => Some(w.second_at.max(w.first_at)),
+        LabBody::Titration(t) => Some(t.read_at),
+        LabBody::BalanceCheck(c) => Some(c.observed_at),
+        _ => None,
+    }
+}
+
+fn late(entry: &CatalogEntry, observed: Timestamp, window_minutes: u32) -> Option<String> {
+    let delay = entry.record_time.0 - observed.0;
+    (delay > i64::from(window_minutes) * MINUTE_MICROS).then(|| {
+        format!(
+            "entry {} was recorded at {}, {} min after the observation at {} (window {window_minutes} min)",
+            entry.seq,
+            when(entry.record_time),
+            delay / MINUTE_MICROS,
+            when(observed)
+        )
+    })
+}
+
+/// Pushes the timeliness findings.
+pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
+    let catalog = evidence.catalog;
+    for run in &evidence.runs {
+        let Some(policy) = run.policy() else { continue };
+        let window = policy.records.contemporaneous_window_minutes;
+        let clause = format!(
+            "{}: records.contemporaneous_window_minutes = {window}",
+            run.policy_label()
+        );
+        let mut stamps: HashMap<Timestamp, Vec<&CatalogEntry>> = HashMap::new();
+        for entry in &run.entries {
+            let body = catalog.current_of(entry);
+            if let Some(observed) = keyed_observation(&body) {
+                if let Some(message) = late(entry, observed, window) {
+                    out.push(
+                        run.finding(Finding::new(Code::LateEntry, message, clause.clone()))
+                            .involving([entry_ref(entry)]),
+                    );
+                }
+            }
+            match body.as_ref() {
+                LabBody::Weighing(w) => {
+                    stamps.entry(w.first_at).or_default().push(entry);
+                    stamps.entry(w.second_at).or_default().push(entry);
+                }
+                LabBody::Titration(t) => stamps.entry(t.read_at).or_default().push(entry),
+                _ => {}
+            }
+        }
+        let most = policy.records.max_readings_per_timestamp as usize;
+        let mut crowded: Vec<(Timestamp, Vec<&CatalogEntry>)> =
+            stamps.into_iter().filter(|(_, e)| e.len() > most).collect();
+        crowded.sort_by_key(|(at, _)| *at);
+        for (at, entries) in crowded {
+            out.push(
+                run.finding(Finding::new(
+                    Code::SharedTimestamp,
+                    format!(
+                        "{} readings of run {} are all timed {}",
+                        entries.len(),
+                        run.id(),
+                        when(at)
+                    ),
+                    format!(
+                        "{}: records.max_readings_per_timestamp = {most}",
+                        run.policy_label()
+                    ),
+                ))
+                .involving(entries.into_iter().map(entry_ref)),
+            );
+        }
+    }
+    // Routine balance checks belong to no run: judged by the policy in force when recorded.
+    for entry in catalog.of_kind(BalanceCheck::KIND) {
+        let Some(adopted) = evidence.policy_before(entry.seq) else {
+            continue;
+        };
+        let Some(policy) = adopted.policy.as_deref() else {
+            continue;
+        };
+        let window = policy.records.contemporaneous_window_minutes;
+        if let Some(observed) = keyed_observation(&catalog.current_of(entry)) {
+            if let Some(message) = late(entry, observed, window) {
+                out.push(
+                    Finding::new(
+                        Code::LateEntry,
+                        message,
+                        format!(
+                            "{}: records.contemporaneous_window_minutes = {window}",
+                            adopted.label
+                        ),
+                    )
+                    .involving([entry_ref(entry)]),
+                );
+            }
+        }
+    }
+}
