@@ -4,7 +4,8 @@
 //! The sign-off names the ledger head it was based on and the SHA-256 of the exception report
 //! the signer saw. The tool refuses a signer who did any of the work covered (self-review),
 //! refuses an approval while blocking findings stand unless the signer records a
-//! justification, and refuses a report hash that no longer matches the report at the current
+//! justification (integrity problems are blocking findings like any other, so approving over
+//! them needs one too), and refuses a report hash that no longer matches the report at the current
 //! head (the data changed since the signer read it). The validator checks the same things
 //! again on replay (`SOD-*`), for sign-offs written by any means.
 
@@ -49,12 +50,6 @@ pub fn prepare(
     signer: &str,
     request: &Request,
 ) -> Result<Prepared, String> {
-    if !replayed.integrity.intact() {
-        return Err(
-            "the ledger has integrity problems; nothing can be signed until they are resolved (run `assize verify`)"
-                .into(),
-        );
-    }
     let evidence = Evidence::gather(&replayed.catalog);
     let hash_of = |seq: u64| ledger.entry(seq).ok().map(|e| e.hash);
     let validation =

@@ -8,6 +8,7 @@ use crate::args::{Cli, DemoArgs};
 use crate::failure::Failure;
 use crate::output::{print_json, print_text};
 use crate::render::{integrity_report, person_views, persons_table, recomputed_text};
+use crate::report::validation_text;
 use crate::session::{kind_rules, role};
 use crate::Outcome;
 use assize_ledger::keyfile::{create_key_file, unlock_key_file};
@@ -18,6 +19,7 @@ use assize_verify::assemble::{recompute_run, Recomputed};
 use assize_verify::catalog::Catalog;
 use assize_verify::intake::{self, Batch, Input};
 use assize_verify::records::DocumentKind;
+use assize_verify::validate::{validate, Scope, Validation};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -111,6 +113,7 @@ struct DemoSummary {
     intact: bool,
     report: assize_ledger::IntegrityReport,
     recomputed: Vec<Recomputed>,
+    validation: Validation,
 }
 
 /// Runs `assize demo`.
@@ -137,7 +140,9 @@ pub fn run(cli: &Cli, args: &DemoArgs) -> Result<Outcome, Failure> {
         anchors: vec![Anchor::Checkpoint(checkpoint)],
         ..ReplayOptions::default()
     };
-    let report = demo.ledger.replay(&options)?;
+    let validation = validate(&demo.ledger, &Scope::Ledger, &options, &mut |_| {})
+        .map_err(|e| Failure::new(e.to_string(), "report this as a bug"))?;
+    let report = validation.integrity.clone();
     let intact = report.intact();
     let people = person_views(demo.ledger.registry()?);
     let summary = DemoSummary {
@@ -148,6 +153,7 @@ pub fn run(cli: &Cli, args: &DemoArgs) -> Result<Outcome, Failure> {
         intact,
         report,
         recomputed: std::mem::take(&mut demo.recomputed),
+        validation,
     };
     if cli.json {
         print_json(&summary)?;
@@ -170,7 +176,11 @@ fn demo_text(summary: &DemoSummary, people: &str) -> String {
     format!(
         "Demo ledger built: {ledger} ({} entries)\n\n{people}\n\n{}\n\
          Verified against checkpoint {checkpoint}:\n{}\n\n\
-         Try next:\n  {program} --ledger {ledger} entries list\n  \
+         Validated (integrity, recompute, every rule of the adopted policy and method):\n{}\n\
+         Try next:\n  {program} --ledger {ledger} replay --run AS-HP-26-0871-1\n  \
+         {program} --ledger {ledger} exceptions AS-HP-26-0871-1\n  \
+         {program} --ledger {ledger} codes\n  \
+         {program} --ledger {ledger} entries list\n  \
          {program} --ledger {ledger} entries show 1\n  \
          {program} --ledger {ledger} verify --checkpoint {checkpoint}\n  \
          {program} --ledger {ledger} recompute STD-KMN-2611-3-A\n  \
@@ -183,6 +193,7 @@ fn demo_text(summary: &DemoSummary, people: &str) -> String {
             .collect::<Vec<_>>()
             .join("\n"),
         integrity_report(&summary.report),
+        validation_text(&summary.validation),
         key.display(),
     )
 }
