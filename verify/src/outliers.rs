@@ -165,7 +165,8 @@ impl From<StatsError> for OutlierError {
 ///
 /// The range W has `P(W ≤ w) = n ∫ φ(x) [Φ(x + w) − Φ(x)]^(n−1) dx`; the integral is taken by
 /// composite Simpson over x in [−8, 8] and the quantile found by bisection. Accepts
-/// 2..=50 values and probabilities from 0.5 to 0.9999.
+/// 2..=50 values and probabilities from 0.5 to 0.9999. Each (n, probability) is computed once
+/// per thread and remembered: a validation asks the same few factors for every run.
 pub fn critical_range_factor(n: usize, probability: f64) -> Result<f64, OutlierError> {
     check_sample_size(
         "the critical range factor",
@@ -181,7 +182,16 @@ pub fn critical_range_factor(n: usize, probability: f64) -> Result<f64, OutlierE
             highest: CRITICAL_RANGE_MAX_PROBABILITY,
         });
     }
-    Ok(range_quantile(n, probability))
+    thread_local! {
+        static FACTORS: std::cell::RefCell<std::collections::HashMap<(usize, u64), f64>> =
+            std::cell::RefCell::new(std::collections::HashMap::new());
+    }
+    Ok(FACTORS.with(|factors| {
+        *factors
+            .borrow_mut()
+            .entry((n, probability.to_bits()))
+            .or_insert_with(|| range_quantile(n, probability))
+    }))
 }
 
 /// ISO 5725-6 critical range CR = f(n)·σr for `n` values, where `repeatability_sd` (σr) is the

@@ -4,7 +4,7 @@
 use super::{entry_ref, Evidence, RunView};
 use crate::catalog::{CatalogEntry, LabBody};
 use crate::findings::{Code, Finding};
-use crate::records::{Replicate, RunKind, Titration, Weighing};
+use crate::records::{Portion, Replicate, RunKind, Titration, Weighing};
 use assize_ledger::EntryHash;
 use assize_ledger::Record;
 use std::collections::HashSet;
@@ -38,12 +38,12 @@ fn orphans(evidence: &Evidence<'_>, run: &RunView<'_>, out: &mut Vec<Finding>) {
     }
     // A captured twin of a keyed weighing (same replicate and portion) is the original of the
     // same observation, not orphan data; CAP-01 compares the two.
-    let used_slots: HashSet<(u32, String)> = run
+    let used_slots: HashSet<(u32, Portion)> = run
         .entries
         .iter()
         .filter(|e| used.contains(&e.hash))
         .filter_map(|e| match catalog.current_of(e).as_ref() {
-            LabBody::Weighing(w) => Some((w.replicate, format!("{:?}", w.portion))),
+            LabBody::Weighing(w) => Some((w.replicate, w.portion)),
             _ => None,
         })
         .collect();
@@ -54,9 +54,7 @@ fn orphans(evidence: &Evidence<'_>, run: &RunView<'_>, out: &mut Vec<Finding>) {
         .filter(|e| e.kind == Weighing::KIND || e.kind == Titration::KIND)
         .filter(|e| !used.contains(&e.hash))
         .filter(|e| match catalog.current_of(e).as_ref() {
-            LabBody::Weighing(w) => {
-                !used_slots.contains(&(w.replicate, format!("{:?}", w.portion)))
-            }
+            LabBody::Weighing(w) => !used_slots.contains(&(w.replicate, w.portion)),
             _ => true,
         })
         .collect();

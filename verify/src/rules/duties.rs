@@ -5,7 +5,7 @@
 use super::{entry_ref, when, Evidence};
 use crate::catalog::{CatalogEntry, LabBody};
 use crate::findings::{Code, Finding};
-use crate::records::{Meaning, SignOff};
+use crate::records::{Invalidation, Meaning, SignOff};
 use assize_ledger::Record;
 use assize_ledger::Timestamp;
 
@@ -36,11 +36,13 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
         };
         let subject = describe(evidence, &sign_off);
         let meaning = sign_off.meaning.name();
-        // The signer did work under review.
+        // The signer did work under review: recorded data or corrected it (an invalidation is a
+        // decision about the data, which OOS-04 judges on its own).
         let own: Vec<&CatalogEntry> = covered
             .iter()
             .copied()
             .filter(|e| e.author == entry.author && e.seq < entry.seq)
+            .filter(|e| e.kind != Invalidation::KIND)
             .collect();
         if !own.is_empty() {
             out.push(

@@ -366,3 +366,222 @@ pub fn evaluate(evidence: &Evidence<'_>) -> Vec<Finding> {
     crate::findings::sort(&mut findings);
     findings
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::catalog::tests::{record, signers, METHOD_TEXT, POLICY_TEXT};
+    use crate::findings::Code;
+    use crate::intake::Input;
+    use crate::records::{Adoption, DocumentKind, RunKind};
+    use assize_ledger::records::Enrolment;
+    use assize_ledger::{Draft, FixedClock, Ledger, Role};
+
+    const MINUTE: i64 = 60_000_000;
+    /// 2026-11-23T08:00:00Z.
+    const MORNING: i64 = 1_795_420_800_000_000;
+
+    fn at(minutes: i64) -> Timestamp {
+        Timestamp(MORNING + minutes * MINUTE)
+    }
+
+    fn text(minutes: i64) -> String {
+        at(minutes).to_string()
+    }
+
+    /// A standardization run named `id` under the latest adoptions, whose one weighing is
+    /// observed at minute `observed` and recorded at minute `recorded`.
+    fn run_with_late_weighing(
+        ledger: &mut Ledger,
+        clock: &FixedClock,
+        id: &str,
+        observed: i64,
+        recorded: i64,
+    ) {
+        let (_, analyst) = signers();
+        clock.set(at(observed));
+        record(
+            ledger,
+            &analyst,
+            &[Input::Run {
+                id: id.into(),
+                run_kind: RunKind::Standardization,
+                method: "QAL-M-014".into(),
+                policy: "QAL-POL-001".into(),
+                titrant: "KMN-V-1".into(),
+                reference_lot: Some("NOX-V-1".into()),
+                sample: None,
+                standardization: None,
+                started_at: text(observed - 1),
+            }],
+        );
+        clock.set(at(recorded));
+        record(
+            ledger,
+            &analyst,
+            &[Input::Weighing {
+                run: id.into(),
+                replicate: 1,
+                portion: crate::records::Portion::PrimaryStandard,
+                balance: "BV-1".into(),
+                mode: crate::records::WeighingMode::ByDifference,
+                first: "18.4127 g".into(),
+                first_at: text(observed),
+                second: "18.1616 g".into(),
+                second_at: text(observed),
+                captured: false,
+                unstable: false,
+            }],
+        );
+    }
+
+    fn codes_of(findings: &[Finding], run: &str) -> Vec<Code> {
+        findings
+            .iter()
+            .filter(|f| f.run.as_deref() == Some(run))
+            .map(|f| f.code)
+            .collect()
+    }
+
+    #[test]
+    fn a_record_is_judged_by_the_policy_in_force_when_it_was_made() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let (qa, analyst) = signers();
+        let clock = Arc::new(FixedClock::new(at(-120), 1_000));
+        let (mut ledger, _) = Ledger::create(
+            &dir.path().join("versions.ledger"),
+            "Policy Version Test Lab",
+            "QA Officer One",
+            &qa,
+            crate::kind_rules(),
+            clock.clone(),
+        )
+        .expect("create");
+        ledger
+            .append_record(
+                &Enrolment {
+                    person: analyst.person().into(),
+                    name: "Analyst One".into(),
+                    role: Role::Analyst,
+                    public_key: analyst.public_key(),
+                },
+                &qa,
+            )
+            .expect("enrol");
+        let adopt = |document, text: &str| Input::Adopt {
+            document,
+            file: None,
+            text: Some(text.into()),
+        };
+        record(
+            &mut ledger,
+            &qa,
+            &[
+                adopt(DocumentKind::Method, METHOD_TEXT),
+                adopt(DocumentKind::Policy, POLICY_TEXT),
+            ],
+        );
+        record(
+            &mut ledger,
+            &analyst,
+            &[
+                Input::Balance {
+                    id: "BV-1".into(),
+                    description: "test balance".into(),
+                    readability: "0.0001 g".into(),
+                    capacity: "220 g".into(),
+                    minimum_weight: "0.0820 g".into(),
+                },
+                Input::ReferenceLot {
+                    id: "NOX-V-1".into(),
+                    substance: "sodium oxalate".into(),
+                    formula: "Na2C2O4".into(),
+                    purity: "0.99965".into(),
+                    purity_expanded_u: "0.00024".into(),
+                    coverage_factor: "2".into(),
+                    certificate: "RM-V-1".into(),
+                    valid_until: "2027-06-30".into(),
+                    drying: "2 h at 110 C".into(),
+                },
+                Input::Titrant {
+                    id: "KMN-V-1".into(),
+                    formula: "KMnO4".into(),
+                    nominal_concentration: "0.02".into(),
+                    prepared_on: "2026-11-16".into(),
+                    valid_until: "2027-02-16".into(),
+                },
+            ],
+        );
+        let v4 = crate::documents::LabPolicy::parse(POLICY_TEXT).expect("shipped policy");
+        assert_eq!(v4.records.contemporaneous_window_minutes, 30);
+        // Recorded 20 minutes after the observation: inside version 4's 30-minute window.
+        run_with_late_weighing(&mut ledger, &clock, "STD-V4", 0, 20);
+        // QA tightens the window to 10 minutes in version 5.
+        let v5_text = POLICY_TEXT
+            .replace("version = \"4\"", "version = \"5\"")
+            .replace(
+                "contemporaneous_window_minutes = 30",
+                "contemporaneous_window_minutes = 10",
+            );
+        assert_ne!(v5_text, POLICY_TEXT, "the policy text changed");
+        clock.set(at(60));
+        record(&mut ledger, &qa, &[adopt(DocumentKind::Policy, &v5_text)]);
+        // The same 20-minute delay under version 5 is late.
+        run_with_late_weighing(&mut ledger, &clock, "STD-V5", 120, 140);
+        // A run recorded after version 5 that still names version 4.
+        let catalog = Catalog::load(ledger.store()).expect("catalog");
+        let v4_hash = catalog
+            .of_kind(Adoption::KIND)
+            .find(|e| matches!(&e.body, LabBody::Adoption(a) if a.version == "4"))
+            .map(|e| e.hash)
+            .expect("version 4 adopted");
+        let titrant = catalog.find_id("lab.titrant", "KMN-V-1").expect("titrant");
+        let lot = catalog
+            .find_id("lab.reference-lot", "NOX-V-1")
+            .expect("lot");
+        let method = catalog
+            .of_kind(Adoption::KIND)
+            .find(|e| matches!(&e.body, LabBody::Adoption(a) if a.document == DocumentKind::Method))
+            .map(|e| e.hash)
+            .expect("method");
+        clock.set(at(200));
+        let stale = Run {
+            id: "STD-STALE".into(),
+            kind: RunKind::Standardization,
+            method,
+            policy: v4_hash,
+            titrant,
+            reference_lot: Some(lot),
+            sample: None,
+            standardization: None,
+            started_at: at(199),
+        };
+        ledger
+            .append(
+                Draft::of_record(analyst.person(), &stale).expect("draft"),
+                Some(&analyst),
+            )
+            .expect("append");
+
+        let catalog = Catalog::load(ledger.store()).expect("catalog");
+        let evidence = Evidence::gather(&catalog);
+        let findings = evaluate(&evidence);
+        let v4_codes = codes_of(&findings, "STD-V4");
+        let v5_codes = codes_of(&findings, "STD-V5");
+        assert!(!v4_codes.contains(&Code::LateEntry), "{v4_codes:?}");
+        assert!(v5_codes.contains(&Code::LateEntry), "{v5_codes:?}");
+        let late = findings
+            .iter()
+            .find(|f| f.code == Code::LateEntry && f.run.as_deref() == Some("STD-V5"))
+            .expect("late entry under version 5");
+        assert!(late.clause.contains("QAL-POL-001 v5"), "{}", late.clause);
+        assert!(late.clause.contains("= 10"), "{}", late.clause);
+        assert!(!v4_codes.contains(&Code::SupersededDocument));
+        assert!(!v5_codes.contains(&Code::SupersededDocument));
+        let stale_codes = codes_of(&findings, "STD-STALE");
+        assert!(
+            stale_codes.contains(&Code::SupersededDocument),
+            "{stale_codes:?}"
+        );
+    }
+}
