@@ -77,12 +77,12 @@ pub fn prepare(
         ));
     }
     if let Some(read) = &request.report_sha256 {
-        let now = report.sha256();
-        if !read.eq_ignore_ascii_case(&now) {
+        if !read.eq_ignore_ascii_case(&report.sha256()) {
             return Err(format!(
-                "the exception report has changed since it was read (read {}, now {}); read it again",
+                "the exception report of run {} has changed since it was read (the hash given starts {}); read it again with `assize exceptions {}`",
+                request.run,
                 short(read),
-                short(&now)
+                request.run
             ));
         }
     }
