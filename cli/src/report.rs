@@ -75,8 +75,18 @@ pub fn validation_text(v: &Validation) -> String {
             "NOT INTACT"
         }
     ));
+    let shown = match v.scope {
+        Scope::Ledger => format!(
+            "{} runs checked, {} with findings{}\n",
+            v.runs_checked,
+            v.runs.len(),
+            if v.runs.is_empty() { "" } else { ":" }
+        ),
+        _ => format!("{} runs checked:\n", v.runs_checked),
+    };
+    text.push_str(&shown);
     if v.runs.is_empty() {
-        text.push_str("no runs\n\n");
+        text.push('\n');
     } else {
         let mut t = table(&[
             "run",

@@ -161,6 +161,18 @@ pub struct Recomputer<'a> {
     standardization_outcomes: HashMap<(EntryHash, EntryHash), Result<Outcome, String>>,
 }
 
+/// What a [`Recomputer`] remembers that does not depend on its catalog: parsed documents,
+/// stoichiometries and molar masses, all keyed by adoption entry or formula. Carry it from one
+/// recomputer to the next ([`Recomputer::with_memory`], [`Recomputer::into_memory`]) when
+/// many small catalogs share the same adoptions.
+#[derive(Default)]
+pub struct DocumentMemory {
+    methods: HashMap<EntryHash, Result<Arc<Method>, String>>,
+    policies: HashMap<EntryHash, Result<Arc<LabPolicy>, String>>,
+    stoichiometries: HashMap<EntryHash, Result<Stoichiometry, String>>,
+    molar_masses: HashMap<String, Result<MolarMass, String>>,
+}
+
 /// A run named as a standardization, as assembled once.
 enum Standardization {
     /// Its context could not be built (the error names that run, or its entry).
@@ -183,6 +195,28 @@ impl<'a> Recomputer<'a> {
             balances: HashMap::new(),
             standardizations: HashMap::new(),
             standardization_outcomes: HashMap::new(),
+        }
+    }
+
+    /// A recomputer over `catalog` that starts from what an earlier one remembered of the
+    /// same adoptions.
+    pub fn with_memory(catalog: &'a Catalog, memory: DocumentMemory) -> Self {
+        Recomputer {
+            methods: memory.methods,
+            policies: memory.policies,
+            stoichiometries: memory.stoichiometries,
+            molar_masses: memory.molar_masses,
+            ..Recomputer::new(catalog)
+        }
+    }
+
+    /// What this recomputer remembers of documents and formulas, for the next one.
+    pub fn into_memory(self) -> DocumentMemory {
+        DocumentMemory {
+            methods: self.methods,
+            policies: self.policies,
+            stoichiometries: self.stoichiometries,
+            molar_masses: self.molar_masses,
         }
     }
 
@@ -607,7 +641,7 @@ fn weighing<'c>(
 }
 
 /// What the balance at `balance` contributes: readability, and the sensitivity uncertainty
-/// from its latest calibration certificate (or the policy's default).
+/// from the calibration certificate in force when the run started (or the policy's default).
 pub fn balance_facts(
     catalog: &Catalog,
     run: &RunContext,
@@ -628,13 +662,21 @@ fn find_balance_facts(
             format!("entry {balance} is not a balance"),
         ));
     };
+    // The certificate in force when the run started: the latest calibration performed on or
+    // before that day (a later certificate says nothing about this run).
+    let run_day = run.run.started_at.to_datetime().date_naive();
     let certified = catalog
         .of_kind("lab.calibration")
         .filter_map(|e| match catalog.current_of(e).as_ref() {
-            LabBody::Calibration(c) if c.balance == *balance => c.sensitivity_relative_u.clone(),
+            LabBody::Calibration(c) if c.balance == *balance => {
+                let performed =
+                    chrono::NaiveDate::parse_from_str(&c.performed_on, "%Y-%m-%d").ok()?;
+                (performed <= run_day).then(|| (performed, e.seq, c.sensitivity_relative_u.clone()))
+            }
             _ => None,
         })
-        .last();
+        .max_by_key(|(performed, seq, _)| (*performed, *seq))
+        .and_then(|(_, _, relative)| relative);
     let relative = certified.unwrap_or_else(|| {
         run.policy
             .uncertainty

@@ -260,6 +260,29 @@ impl Catalog {
         subset
     }
 
+    /// A catalog of these entries (put in sequence order; a repeated sequence number is kept
+    /// once).
+    pub fn from_entries(entries: impl IntoIterator<Item = CatalogEntry>) -> Catalog {
+        let mut chosen: Vec<CatalogEntry> = entries.into_iter().collect();
+        chosen.sort_by_key(|e| e.seq);
+        chosen.dedup_by_key(|e| e.seq);
+        let mut catalog = Catalog::with_capacity(chosen.len());
+        for entry in chosen {
+            catalog.insert(Prepared::Lab(entry));
+        }
+        catalog
+    }
+
+    /// Decodes one ledger entry as [`Catalog::add`] would: `Ok(None)` when it is not a lab
+    /// entry, `Err` when it is one that cannot be used.
+    pub fn decode_entry(entry: Entry) -> Result<Option<CatalogEntry>, Defect> {
+        match Prepared::of_owned(entry) {
+            Prepared::Lab(entry) => Ok(Some(entry)),
+            Prepared::NotLab => Ok(None),
+            Prepared::Defect(defect) => Err(defect),
+        }
+    }
+
     /// Adds one ledger entry (entries must come in sequence order).
     pub fn add(&mut self, entry: &Entry) {
         self.insert(Prepared::of(entry));
@@ -390,6 +413,11 @@ impl Catalog {
             list.sort_by_key(|e| e.seq);
         }
         list.into_iter()
+    }
+
+    /// Every lab entry as recorded, in the order added.
+    pub fn entries(&self) -> &[CatalogEntry] {
+        &self.entries
     }
 
     /// Lab entries that could not be decoded or failed their checks.

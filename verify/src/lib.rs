@@ -28,6 +28,7 @@ pub mod rounding;
 pub mod rules;
 pub mod signoff;
 pub mod stats;
+pub mod stream;
 pub mod uncertainty;
 pub mod validate;
 

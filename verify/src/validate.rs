@@ -1,5 +1,6 @@
-//! One validation pass: replay the chain (integrity), build the catalog from the same read,
-//! recompute every run, apply every rule, and keep what concerns the chosen scope.
+//! One validation pass: replay the chain (integrity), recompute every run, apply every rule,
+//! and keep what concerns the chosen scope. [`validate`] streams (see [`crate::stream`]);
+//! [`validate_in_memory`] and [`judge`] work on a catalog of the whole ledger.
 //!
 //! Integrity findings concern the whole ledger and are kept whatever the scope. The result
 //! carries, per run in scope, the recomputed result and the count of findings, so a caller can
@@ -81,8 +82,11 @@ pub struct Validation {
     pub integrity: IntegrityReport,
     /// The head the validation is based on.
     pub head: Option<ReportHead>,
-    /// Runs in scope.
+    /// Runs in scope: every one for a run or sample scope; for the whole ledger, the runs
+    /// with findings (the others are counted in `runs_checked`).
     pub runs: Vec<RunSummary>,
+    /// Runs judged in scope.
+    pub runs_checked: usize,
     /// Findings in scope (integrity findings always), sorted by entry.
     pub findings: Vec<Finding>,
     /// Findings by severity.
@@ -131,8 +135,29 @@ pub fn replay(
     Ok(Replayed { integrity, catalog })
 }
 
-/// Validates the ledger (see the module text). `progress` hears the replay's progress.
+/// Validates the ledger in one streaming pass with bounded memory
+/// ([`crate::stream::validate_streaming`] with its default window). `progress` hears the
+/// replay's progress.
 pub fn validate(
+    ledger: &Ledger,
+    scope: &Scope,
+    options: &ReplayOptions,
+    progress: &mut dyn FnMut(u64),
+) -> Result<Validation, ValidateError> {
+    crate::stream::validate_streaming(
+        ledger,
+        scope,
+        options,
+        &crate::stream::StreamOptions::default(),
+        progress,
+    )
+}
+
+/// Validates the ledger from a catalog of every lab entry held in memory: the reference the
+/// streaming validation is tested against, and what `exceptions`, `sign` and `periodic` build
+/// on. Same findings as [`validate`] (which compares readings for `PAT-02` only within its
+/// horizon).
+pub fn validate_in_memory(
     ledger: &Ledger,
     scope: &Scope,
     options: &ReplayOptions,
@@ -164,7 +189,8 @@ pub fn judge(
             Scope::Ledger => unreachable!(),
         }));
     }
-    let mut findings = integrity::findings(&replayed.integrity, &replayed.catalog, hash_of);
+    let mut findings =
+        integrity::findings(&replayed.integrity, replayed.catalog.defects(), hash_of);
     let rule_findings = rules::evaluate(evidence);
     findings.extend(rule_findings.into_iter().filter(|f| match scope {
         Scope::Ledger => true,
@@ -172,11 +198,16 @@ pub fn judge(
         Scope::Sample(id) => f.sample.as_deref() == Some(id.as_str()),
     }));
     crate::findings::sort(&mut findings);
-    let runs = evidence
+    let runs: Vec<RunSummary> = evidence
         .runs
         .iter()
         .filter(|r| in_scope(r))
         .map(|run| summarize(evidence, run, &findings))
+        .collect();
+    let runs_checked = runs.len();
+    let runs = runs
+        .into_iter()
+        .filter(|r| *scope != Scope::Ledger || r.findings != Tally::default())
         .collect();
     let tally = Tally::of(&findings);
     Ok(Validation {
@@ -184,12 +215,17 @@ pub fn judge(
         head: replayed.integrity.head,
         integrity: replayed.integrity.clone(),
         runs,
+        runs_checked,
         findings,
         tally,
     })
 }
 
-fn summarize(evidence: &Evidence<'_>, run: &RunView<'_>, findings: &[Finding]) -> RunSummary {
+pub(crate) fn summarize(
+    evidence: &Evidence<'_>,
+    run: &RunView<'_>,
+    findings: &[Finding],
+) -> RunSummary {
     let result = run.recomputed.as_ref().ok().map(|r| {
         let outcome = &r.outcome;
         match outcome.reported {

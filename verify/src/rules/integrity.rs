@@ -1,7 +1,7 @@
 //! Integrity findings (`INT-*`): the problems the ledger's replay reports, and lab entries the
 //! catalog had to set aside because they fail their own checks.
 
-use crate::catalog::Catalog;
+use crate::catalog::Defect;
 use crate::findings::{Code, EntryRef, Finding};
 use assize_ledger::{AuthorityIssue, EntryHash, IntegrityReport, Problem};
 
@@ -33,7 +33,7 @@ pub fn code_of(problem: &Problem) -> Code {
 /// entry by sequence number where the ledger still has one.
 pub fn findings(
     report: &IntegrityReport,
-    catalog: &Catalog,
+    defects: &[Defect],
     hash_of: &dyn Fn(u64) -> Option<EntryHash>,
 ) -> Vec<Finding> {
     let involving = |seq: Option<u64>| {
@@ -63,7 +63,7 @@ pub fn findings(
             "ledger invariants (ARCHITECTURE.md)",
         ));
     }
-    for defect in catalog.defects() {
+    for defect in defects {
         findings.push(
             Finding::new(
                 Code::RecordDefective,

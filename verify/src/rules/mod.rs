@@ -137,31 +137,25 @@ impl<'a> Evidence<'a> {
         catalog: &'a Catalog,
         recomputed: Vec<(EntryHash, Result<Recomputed, String>)>,
     ) -> Evidence<'a> {
-        let mut adopted = HashMap::new();
-        let mut policies = Vec::new();
-        for entry in catalog.of_kind("lab.adopt") {
-            let LabBody::Adoption(a) = catalog.current_of(entry).into_owned() else {
-                continue;
-            };
-            let (method, policy) = match a.document {
-                DocumentKind::Method => (Method::parse(&a.text).ok().map(Arc::new), None),
-                DocumentKind::Policy => (None, LabPolicy::parse(&a.text).ok().map(Arc::new)),
-            };
-            if a.document == DocumentKind::Policy {
-                policies.push(entry.hash);
-            }
-            adopted.insert(
-                entry.hash,
-                Arc::new(Adopted {
-                    at: entry_ref(entry),
-                    document: a.document,
-                    label: format!("{} v{}", a.id, a.version),
-                    id: a.id,
-                    method,
-                    policy,
-                }),
-            );
-        }
+        let adopted = adopted_documents(catalog);
+        Evidence::with_documents(catalog, adopted, recomputed)
+    }
+
+    /// Like [`Evidence::with_recomputed`], with the catalog's adopted documents already
+    /// parsed (by [`adopted_documents`], here or on a larger catalog that holds the same
+    /// adoptions).
+    pub fn with_documents(
+        catalog: &'a Catalog,
+        adopted: HashMap<EntryHash, Arc<Adopted>>,
+        recomputed: Vec<(EntryHash, Result<Recomputed, String>)>,
+    ) -> Evidence<'a> {
+        let mut policies: Vec<(u64, EntryHash)> = adopted
+            .iter()
+            .filter(|(_, a)| a.document == DocumentKind::Policy)
+            .map(|(hash, a)| (a.at.seq, *hash))
+            .collect();
+        policies.sort();
+        let policies = policies.into_iter().map(|(_, hash)| hash).collect();
         let mut evidence = Evidence {
             catalog,
             adopted,
@@ -298,6 +292,32 @@ impl<'a> Evidence<'a> {
         }
         authors
     }
+}
+
+/// Every adopted method and policy of the catalog, parsed once.
+pub fn adopted_documents(catalog: &Catalog) -> HashMap<EntryHash, Arc<Adopted>> {
+    let mut adopted = HashMap::new();
+    for entry in catalog.of_kind("lab.adopt") {
+        let LabBody::Adoption(a) = catalog.current_of(entry).into_owned() else {
+            continue;
+        };
+        let (method, policy) = match a.document {
+            DocumentKind::Method => (Method::parse(&a.text).ok().map(Arc::new), None),
+            DocumentKind::Policy => (None, LabPolicy::parse(&a.text).ok().map(Arc::new)),
+        };
+        adopted.insert(
+            entry.hash,
+            Arc::new(Adopted {
+                at: entry_ref(entry),
+                document: a.document,
+                label: format!("{} v{}", a.id, a.version),
+                id: a.id,
+                method,
+                policy,
+            }),
+        );
+    }
+    adopted
 }
 
 /// A reference to a catalog entry.

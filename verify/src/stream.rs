@@ -1,0 +1,1082 @@
+//! Validation in one streaming pass, with memory that does not grow with the ledger.
+//!
+//! The integrity replay walks the chain; each entry it has judged is handed, in batches, to a
+//! thread that decodes it and files it: a run's entries (its weighings, replicates, stated
+//! values, results, and the corrections, invalidations, sign-offs and investigations that name
+//! them) go into the run's bucket; adoptions, balances with their calibrations and checks, and
+//! materials (reference lots, titrants, samples) go into small tables. When the walk is
+//! `window` entries past a run, the run is judged: a small catalog of the run, the
+//! standardization it relies on and what both depend on is built, recomputed, and every rule
+//! is applied to it exactly as [`crate::validate::validate`] applies them to the whole
+//! catalog; the findings about that run are kept and the bucket is dropped.
+//!
+//! What arrives for a run after it was judged (a late correction, a sign-off months later) is
+//! noticed when the walk reaches it; the run, and the assays relying on it if it is a
+//! standardization, are judged again at the end from the ledger's indexes. Materials not used
+//! for a window are dropped and read back by index when needed. The few rules that look across
+//! runs are kept apart: failed balance checks and what was weighed since the last passing one
+//! (`BAL-04`, `BAL-05`), late routine checks (`TIM-01`), corrections of records outside runs
+//! without a reason (`CHG-02`), retests after an out-of-specification result (`OOS-02`) and
+//! readings reused across runs (`PAT-02`, compared within the most recent
+//! `fingerprint_horizon` weighings). Memory is bounded by the window, the horizon and the
+//! tables of balances and documents, not by the number of entries.
+
+use crate::assemble::{DocumentMemory, Recomputer};
+use crate::catalog::{Catalog, CatalogEntry, Defect, LabBody};
+use crate::conformance::Decision;
+use crate::findings::{sort, Code, EntryRef, Finding, Tally};
+use crate::records::{RunKind, Weighing};
+use crate::rules::{self, adopted_documents, entry_ref, integrity, Adopted, Evidence};
+use crate::validate::{summarize, RunSummary, Scope, ValidateError, Validation};
+use assize_ledger::store::Store;
+use assize_ledger::{
+    Entry, EntryHash, IntegrityReport, Ledger, LedgerError, OpenMode, Record, ReplayOptions,
+    Timestamp,
+};
+use chrono::NaiveDate;
+use std::collections::{BTreeMap, BTreeSet, HashMap, HashSet, VecDeque};
+use std::hash::{Hash, Hasher};
+use std::sync::mpsc::sync_channel;
+use std::sync::Arc;
+
+/// Entries the replay hands over at a time.
+const ENTRIES_PER_HANDOFF: usize = 256;
+/// Hand-offs that may wait for the judging thread.
+const HANDOFFS_WAITING: usize = 8;
+/// Standardizations kept after they were judged, for the assays that rely on them.
+const STANDARDIZATIONS_KEPT: usize = 256;
+
+/// How far the streaming validation looks back.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct StreamOptions {
+    /// A run is judged when the walk is this many entries past it.
+    pub window: u64,
+    /// Weighings whose readings are remembered for `PAT-02`.
+    pub fingerprint_horizon: usize,
+}
+
+impl Default for StreamOptions {
+    fn default() -> Self {
+        StreamOptions {
+            window: 20_000,
+            fingerprint_horizon: 262_144,
+        }
+    }
+}
+
+/// The codes only the cross-run stage gives (a run's own judgement leaves them out).
+const CROSS_RUN: [Code; 3] = [
+    Code::WeighedBeforeFailedCheck,
+    Code::RetestBeforeInvestigation,
+    Code::ReadingReused,
+];
+
+/// Validates the ledger in one streaming pass (see the module text).
+pub fn validate_streaming(
+    ledger: &Ledger,
+    scope: &Scope,
+    options: &ReplayOptions,
+    stream: &StreamOptions,
+    progress: &mut dyn FnMut(u64),
+) -> Result<Validation, ValidateError> {
+    let store = Store::open(ledger.store().path(), OpenMode::ReadOnly)?;
+    let options = ReplayOptions {
+        threads: match options.threads {
+            0 => std::thread::available_parallelism()
+                .map_or(1, |n| n.get())
+                .saturating_sub(1)
+                .max(1),
+            n => n,
+        },
+        ..options.clone()
+    };
+    let (sender, receiver) = sync_channel::<Vec<Entry>>(HANDOFFS_WAITING);
+    let (report, judged) = std::thread::scope(|threads| {
+        let judge = threads.spawn(move || {
+            let mut state = Stream::new(store, scope.clone(), *stream);
+            for batch in receiver {
+                for entry in batch {
+                    state.take(entry)?;
+                }
+            }
+            state.finish()
+        });
+        let mut pending = Vec::with_capacity(ENTRIES_PER_HANDOFF);
+        let report = ledger.replay_observed(&options, &mut |entry| {
+            let seq = entry.seq;
+            pending.push(entry);
+            if pending.len() == ENTRIES_PER_HANDOFF {
+                progress(seq);
+                let full = std::mem::replace(&mut pending, Vec::with_capacity(ENTRIES_PER_HANDOFF));
+                // The judging thread receives until the sender is dropped.
+                let _ = sender.send(full);
+            }
+        });
+        let _ = sender.send(pending);
+        drop(sender);
+        let judged = match judge.join() {
+            Ok(judged) => judged,
+            Err(panic) => std::panic::resume_unwind(panic),
+        };
+        (report, judged)
+    });
+    let report = report?;
+    let judged = judged?;
+    finish_validation(ledger, scope, report, judged)
+}
+
+/// What the judging thread hands back.
+struct Judged {
+    defects: Vec<Defect>,
+    findings: Vec<Finding>,
+    runs: Vec<RunSummary>,
+    runs_checked: usize,
+    scope_found: bool,
+}
+
+fn finish_validation(
+    ledger: &Ledger,
+    scope: &Scope,
+    integrity_report: IntegrityReport,
+    judged: Judged,
+) -> Result<Validation, ValidateError> {
+    if !judged.scope_found && *scope != Scope::Ledger {
+        return Err(ValidateError::UnknownScope(match scope {
+            Scope::Run(id) => format!("the ledger has no run {id:?}"),
+            Scope::Sample(id) => format!("the ledger has no run on sample {id:?}"),
+            Scope::Ledger => unreachable!(),
+        }));
+    }
+    let hash_of = |seq: u64| ledger.entry(seq).ok().map(|e| e.hash);
+    let mut findings = integrity::findings(&integrity_report, &judged.defects, &hash_of);
+    findings.extend(judged.findings.into_iter().filter(|f| match scope {
+        Scope::Ledger => true,
+        Scope::Run(id) => f.run.as_deref() == Some(id.as_str()),
+        Scope::Sample(id) => f.sample.as_deref() == Some(id.as_str()),
+    }));
+    sort(&mut findings);
+    let tally = Tally::of(&findings);
+    Ok(Validation {
+        scope: scope.clone(),
+        head: integrity_report.head,
+        integrity: integrity_report,
+        runs: judged.runs,
+        runs_checked: judged.runs_checked,
+        findings,
+        tally,
+    })
+}
+
+/// A run's entries while the walk is within the window of it.
+struct Bucket {
+    run: EntryHash,
+    entries: Vec<CatalogEntry>,
+}
+
+/// A balance and what is recorded about it.
+#[derive(Default)]
+struct BalanceRecords {
+    entries: Vec<CatalogEntry>,
+    /// Routine checks by UTC day of observation.
+    checks_by_day: BTreeMap<NaiveDate, Vec<CatalogEntry>>,
+    /// Routine checks with their verdict, by observation time (for failed-check impact).
+    verdicts: Vec<(Timestamp, u64, bool)>,
+}
+
+/// A lot, titrant or sample, with its corrections.
+struct Material {
+    entries: Vec<CatalogEntry>,
+    last_used: u64,
+}
+
+/// A failed routine check, for `BAL-05` at the end.
+struct FailedCheck {
+    balance: EntryHash,
+    check: CatalogEntry,
+    at: Timestamp,
+    since: Timestamp,
+    since_seq: u64,
+}
+
+/// A failing assay, for `OOS-02` at the end.
+struct Failing {
+    run_seq: u64,
+    run_id: String,
+    sample: EntryHash,
+    investigation_seq: u64,
+}
+
+/// The judging thread's state.
+struct Stream {
+    store: Store,
+    scope: Scope,
+    options: StreamOptions,
+    walked: u64,
+    adoptions: Vec<CatalogEntry>,
+    adopted: HashMap<EntryHash, Arc<Adopted>>,
+    balances: HashMap<EntryHash, BalanceRecords>,
+    /// Which balance a calibration or check entry belongs to.
+    balance_of: HashMap<EntryHash, EntryHash>,
+    materials: HashMap<EntryHash, Material>,
+    buckets: BTreeMap<u64, Bucket>,
+    /// Bucket (run sequence number) of every entry in a bucket.
+    owner: HashMap<EntryHash, u64>,
+    /// Standardizations already judged, newest last.
+    standardizations: VecDeque<(EntryHash, Arc<Vec<CatalogEntry>>)>,
+    /// Runs to judge again at the end.
+    again: BTreeSet<EntryHash>,
+    defects: Vec<Defect>,
+    cross_run: Vec<Finding>,
+    failed_checks: Vec<FailedCheck>,
+    failing: BTreeMap<u64, Failing>,
+    fingerprints: HashMap<u64, (u64, EntryRef)>,
+    fingerprint_order: VecDeque<u64>,
+    reused: BTreeMap<u64, Vec<(u64, EntryRef)>>,
+    judged: BTreeMap<u64, (Vec<Finding>, RunSummary)>,
+    scope_found: bool,
+    memory: Option<DocumentMemory>,
+}
+
+impl Stream {
+    fn new(store: Store, scope: Scope, options: StreamOptions) -> Stream {
+        Stream {
+            store,
+            scope,
+            options,
+            walked: 0,
+            adoptions: Vec::new(),
+            adopted: HashMap::new(),
+            balances: HashMap::new(),
+            balance_of: HashMap::new(),
+            materials: HashMap::new(),
+            buckets: BTreeMap::new(),
+            owner: HashMap::new(),
+            standardizations: VecDeque::new(),
+            again: BTreeSet::new(),
+            defects: Vec::new(),
+            cross_run: Vec::new(),
+            failed_checks: Vec::new(),
+            failing: BTreeMap::new(),
+            fingerprints: HashMap::new(),
+            fingerprint_order: VecDeque::new(),
+            reused: BTreeMap::new(),
+            judged: BTreeMap::new(),
+            scope_found: false,
+            memory: Some(DocumentMemory::default()),
+        }
+    }
+
+    /// Files one walked entry, then judges the runs the window has left behind.
+    fn take(&mut self, entry: Entry) -> Result<(), LedgerError> {
+        self.walked = entry.seq;
+        match Catalog::decode_entry(entry) {
+            Err(defect) => self.defects.push(defect),
+            Ok(None) => {}
+            Ok(Some(lab)) => self.file(lab)?,
+        }
+        while let Some((&seq, _)) = self.buckets.first_key_value() {
+            if seq + self.options.window > self.walked {
+                break;
+            }
+            let bucket = self.buckets.remove(&seq).expect("first key");
+            for e in &bucket.entries {
+                self.owner.remove(&e.hash);
+            }
+            self.judge_run(bucket.run, bucket.entries)?;
+        }
+        if self.walked % 4096 == 0 {
+            let horizon = self.walked.saturating_sub(self.options.window);
+            self.materials.retain(|_, m| m.last_used >= horizon);
+        }
+        Ok(())
+    }
+
+    /// Puts a lab entry where it belongs.
+    fn file(&mut self, entry: CatalogEntry) -> Result<(), LedgerError> {
+        let target = match &entry.body {
+            LabBody::Adoption(_) => {
+                self.adoptions.push(entry);
+                self.adopted = adopted_documents(&Catalog::from_entries(self.adoptions.clone()));
+                return Ok(());
+            }
+            LabBody::Balance(_) => {
+                let hash = entry.hash;
+                self.balances.entry(hash).or_default().entries.push(entry);
+                return Ok(());
+            }
+            LabBody::Calibration(c) => {
+                self.balance_of.insert(entry.hash, c.balance);
+                let balance = c.balance;
+                self.balances
+                    .entry(balance)
+                    .or_default()
+                    .entries
+                    .push(entry);
+                return Ok(());
+            }
+            LabBody::BalanceCheck(_) => return self.file_check(entry),
+            LabBody::ReferenceLot(_) | LabBody::Titrant(_) | LabBody::Sample(_) => {
+                self.materials.insert(
+                    entry.hash,
+                    Material {
+                        entries: vec![entry],
+                        last_used: self.walked,
+                    },
+                );
+                return Ok(());
+            }
+            LabBody::Run(r) => {
+                for hash in [Some(r.titrant), r.reference_lot, r.sample]
+                    .into_iter()
+                    .flatten()
+                {
+                    if let Some(m) = self.materials.get_mut(&hash) {
+                        m.last_used = self.walked;
+                    }
+                }
+                self.owner.insert(entry.hash, entry.seq);
+                self.buckets.insert(
+                    entry.seq,
+                    Bucket {
+                        run: entry.hash,
+                        entries: vec![entry],
+                    },
+                );
+                return Ok(());
+            }
+            LabBody::Correction(c) => c.supersedes,
+            LabBody::Invalidation(i) => i.replicate,
+            LabBody::SignOff(s) => s.subject,
+            LabBody::Oos(o) => o.subject,
+            other => other.run().expect("every other lab kind belongs to a run"),
+        };
+        if let Some(&bucket) = self.owner.get(&target) {
+            self.owner.insert(entry.hash, bucket);
+            if let Some(b) = self.buckets.get_mut(&bucket) {
+                b.entries.push(entry);
+            }
+            return Ok(());
+        }
+        if let LabBody::Correction(c) = &entry.body {
+            if self.file_outside_runs(&entry, c.supersedes) {
+                return Ok(());
+            }
+        }
+        // Something about a run already judged: judge it again at the end.
+        if let Some(run) = self.run_of_stored(&target, 0)? {
+            self.again.insert(run);
+        }
+        Ok(())
+    }
+
+    /// A correction of an adoption, balance record or material; `CHG-02` when it has no
+    /// reason. False when the corrected entry is none of those.
+    fn file_outside_runs(&mut self, entry: &CatalogEntry, target: EntryHash) -> bool {
+        let filed = if let Some(m) = self.materials.get_mut(&target) {
+            m.entries.push(entry.clone());
+            true
+        } else if let Some(b) = self.balances.get_mut(&target) {
+            b.entries.push(entry.clone());
+            true
+        } else if let Some(balance) = self.balance_of.get(&target) {
+            let records = self.balances.entry(*balance).or_default();
+            records.entries.push(entry.clone());
+            for checks in records.checks_by_day.values_mut() {
+                if checks.iter().any(|c| c.hash == target) {
+                    checks.push(entry.clone());
+                }
+            }
+            true
+        } else if self.adoptions.iter().any(|a| a.hash == target) {
+            self.adoptions.push(entry.clone());
+            true
+        } else {
+            self.store_material_correction(entry, target)
+        };
+        if filed {
+            if let LabBody::Correction(c) = &entry.body {
+                if c.reason.trim().is_empty() {
+                    self.cross_run.push(
+                        Finding::new(
+                            Code::CorrectionWithoutReason,
+                            format!(
+                                "{} changed entry {} ({}) without giving a reason",
+                                entry.author,
+                                self.seq_of(&target).unwrap_or(0),
+                                c.kind
+                            ),
+                            "every change is explained (21 CFR 58.130(e))",
+                        )
+                        .involving([entry_ref(entry)])
+                        .involving(
+                            self.seq_of(&target)
+                                .map(|seq| EntryRef { seq, hash: target }),
+                        ),
+                    );
+                }
+            }
+        }
+        filed
+    }
+
+    /// A correction of a material the window no longer holds: read the material back.
+    fn store_material_correction(&mut self, entry: &CatalogEntry, target: EntryHash) -> bool {
+        match self.load(&target) {
+            Ok(Some(found))
+                if matches!(
+                    found.body,
+                    LabBody::ReferenceLot(_) | LabBody::Titrant(_) | LabBody::Sample(_)
+                ) =>
+            {
+                let mut entries = self.load_with_corrections(found).unwrap_or_default();
+                if !entries.iter().any(|e| e.hash == entry.hash) {
+                    entries.push(entry.clone());
+                }
+                self.materials.insert(
+                    target,
+                    Material {
+                        entries,
+                        last_used: self.walked,
+                    },
+                );
+                true
+            }
+            _ => false,
+        }
+    }
+
+    fn seq_of(&self, hash: &EntryHash) -> Option<u64> {
+        self.store.seq_of_hash(hash).ok().flatten()
+    }
+
+    /// A routine balance check: filed by day; `BAL-04` and `TIM-01` judged now, by the policy
+    /// adopted most recently before it.
+    fn file_check(&mut self, entry: CatalogEntry) -> Result<(), LedgerError> {
+        let LabBody::BalanceCheck(check) = &entry.body else {
+            unreachable!("called for checks")
+        };
+        self.balance_of.insert(entry.hash, check.balance);
+        let balance = check.balance;
+        let at = check.observed_at;
+        // Judge the check alone, in a catalog of the adoptions, the balance and the check.
+        let mut entries = self.adoptions.clone();
+        if let Some(records) = self.balances.get(&balance) {
+            entries.extend(records.entries.iter().cloned());
+        }
+        entries.push(entry.clone());
+        let catalog = Catalog::from_entries(entries);
+        let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
+        let mut findings = Vec::new();
+        rules::balances::check(&evidence, &mut findings);
+        rules::timeliness::check(&evidence, &mut findings);
+        let failed = findings.iter().any(|f| {
+            f.code == Code::BalanceCheckFailed && f.entries.iter().any(|e| e.hash == entry.hash)
+        });
+        self.cross_run.extend(
+            findings
+                .into_iter()
+                .filter(|f| f.entries.iter().any(|e| e.hash == entry.hash) && f.run.is_none()),
+        );
+        let records = self.balances.entry(balance).or_default();
+        if failed {
+            let (since, since_seq) = records
+                .verdicts
+                .iter()
+                .rev()
+                .find(|(t, _, passed)| *passed && *t <= at)
+                .map_or((Timestamp(i64::MIN), 0), |(t, seq, _)| (*t, *seq));
+            self.failed_checks.push(FailedCheck {
+                balance,
+                check: entry.clone(),
+                at,
+                since,
+                since_seq,
+            });
+        }
+        records.verdicts.push((at, entry.seq, !failed));
+        records.verdicts.sort();
+        records
+            .checks_by_day
+            .entry(rules::day_of(at))
+            .or_default()
+            .push(entry);
+        Ok(())
+    }
+
+    /// Reads one entry back by hash and decodes it.
+    fn load(&self, hash: &EntryHash) -> Result<Option<CatalogEntry>, LedgerError> {
+        let Some(seq) = self.store.seq_of_hash(hash)? else {
+            return Ok(None);
+        };
+        if seq > self.walked {
+            return Ok(None);
+        }
+        match self.store.entry(seq)? {
+            Some(entry) => Ok(Catalog::decode_entry(entry).ok().flatten()),
+            None => Ok(None),
+        }
+    }
+
+    /// The entries that name `hash` (as the walk has seen them), decoded.
+    fn naming(&self, hash: &EntryHash) -> Result<Vec<CatalogEntry>, LedgerError> {
+        let mut found = Vec::new();
+        for seq in self.store.referencing(hash)? {
+            if seq > self.walked {
+                continue;
+            }
+            if let Some(entry) = self.store.entry(seq)? {
+                if let Ok(Some(lab)) = Catalog::decode_entry(entry) {
+                    found.push(lab);
+                }
+            }
+        }
+        Ok(found)
+    }
+
+    /// An entry read back with the corrections of it.
+    fn load_with_corrections(&self, entry: CatalogEntry) -> Result<Vec<CatalogEntry>, LedgerError> {
+        let corrections = self
+            .naming(&entry.hash)?
+            .into_iter()
+            .filter(|e| matches!(e.body, LabBody::Correction(_)));
+        Ok(std::iter::once(entry).chain(corrections).collect())
+    }
+
+    /// The run a stored entry belongs to, following corrections, invalidations, sign-offs and
+    /// investigations to what they name.
+    fn run_of_stored(
+        &self,
+        hash: &EntryHash,
+        depth: u32,
+    ) -> Result<Option<EntryHash>, LedgerError> {
+        if depth > 4 {
+            return Ok(None);
+        }
+        let Some(entry) = self.load(hash)? else {
+            return Ok(None);
+        };
+        let next = match &entry.body {
+            LabBody::Run(_) => return Ok(Some(entry.hash)),
+            LabBody::Correction(c) => c.supersedes,
+            LabBody::Invalidation(i) => i.replicate,
+            LabBody::SignOff(s) => s.subject,
+            LabBody::Oos(o) => o.subject,
+            body => match body.run() {
+                Some(run) => return Ok(Some(run)),
+                None => return Ok(None),
+            },
+        };
+        self.run_of_stored(&next, depth + 1)
+    }
+
+    /// Everything recorded about a run, read back from the ledger's indexes.
+    fn load_run(&self, run: &EntryHash) -> Result<Vec<CatalogEntry>, LedgerError> {
+        let Some(run_entry) = self.load(run)? else {
+            return Ok(Vec::new());
+        };
+        let mut entries = vec![run_entry];
+        let mut next = 0;
+        let mut seen: HashSet<EntryHash> = HashSet::from([*run]);
+        while next < entries.len() {
+            let hash = entries[next].hash;
+            next += 1;
+            for found in self.naming(&hash)? {
+                let belongs = match &found.body {
+                    LabBody::Correction(_)
+                    | LabBody::Invalidation(_)
+                    | LabBody::SignOff(_)
+                    | LabBody::Oos(_) => true,
+                    body => body.run() == Some(*run),
+                };
+                if belongs && seen.insert(found.hash) {
+                    entries.push(found);
+                }
+            }
+        }
+        entries.sort_by_key(|e| e.seq);
+        Ok(entries)
+    }
+
+    /// A material's entries, from the table or read back.
+    fn material(&mut self, hash: &EntryHash) -> Result<Vec<CatalogEntry>, LedgerError> {
+        if let Some(m) = self.materials.get_mut(hash) {
+            m.last_used = self.walked;
+            return Ok(m.entries.clone());
+        }
+        let Some(found) = self.load(hash)? else {
+            return Ok(Vec::new());
+        };
+        let entries = self.load_with_corrections(found)?;
+        self.materials.insert(
+            *hash,
+            Material {
+                entries: entries.clone(),
+                last_used: self.walked,
+            },
+        );
+        Ok(entries)
+    }
+
+    /// A standardization's entries: kept from when it was judged, or read back.
+    fn standardization_entries(
+        &mut self,
+        hash: &EntryHash,
+    ) -> Result<Arc<Vec<CatalogEntry>>, LedgerError> {
+        if let Some(bucket) = self.owner.get(hash).and_then(|seq| self.buckets.get(seq)) {
+            return Ok(Arc::new(bucket.entries.clone()));
+        }
+        if let Some((_, kept)) = self.standardizations.iter().find(|(h, _)| h == hash) {
+            return Ok(Arc::clone(kept));
+        }
+        Ok(Arc::new(self.load_run(hash)?))
+    }
+
+    /// Whether a run is in the validation's scope.
+    fn in_scope(&self, run_id: &str, sample_id: Option<&str>) -> bool {
+        match &self.scope {
+            Scope::Ledger => true,
+            Scope::Run(id) => id == run_id,
+            Scope::Sample(id) => sample_id == Some(id.as_str()),
+        }
+    }
+
+    /// Judges one run from its entries and what they depend on.
+    fn judge_run(&mut self, run: EntryHash, entries: Vec<CatalogEntry>) -> Result<(), LedgerError> {
+        let own = Catalog::from_entries(entries.clone());
+        let Some(LabBody::Run(body)) = own.current(&run) else {
+            return Ok(());
+        };
+        let is_standardization = body.kind == RunKind::Standardization;
+        let mut all = entries;
+        all.extend(self.adoptions.iter().cloned());
+        let mut standardization = None;
+        if let Some(std_hash) = body.standardization {
+            let std_entries = self.standardization_entries(&std_hash)?;
+            if let Some(LabBody::Run(std_body)) =
+                Catalog::from_entries(std_entries.iter().cloned()).current(&std_hash)
+            {
+                for hash in [
+                    Some(std_body.titrant),
+                    std_body.reference_lot,
+                    std_body.sample,
+                ]
+                .into_iter()
+                .flatten()
+                {
+                    all.extend(self.material(&hash)?);
+                }
+            }
+            all.extend(std_entries.iter().cloned());
+            standardization = Some(std_hash);
+        }
+        for hash in [Some(body.titrant), body.reference_lot, body.sample]
+            .into_iter()
+            .flatten()
+        {
+            all.extend(self.material(&hash)?);
+        }
+        // Balances weighed on, with their calibrations and the checks on the days of use.
+        let mut days: BTreeMap<EntryHash, BTreeSet<NaiveDate>> = BTreeMap::new();
+        for e in &all {
+            if let LabBody::Weighing(w) = &e.body {
+                days.entry(w.balance)
+                    .or_default()
+                    .insert(rules::day_of(w.first_at));
+            }
+        }
+        let mini_for_weighings = Catalog::from_entries(all.iter().cloned());
+        for e in mini_for_weighings.of_kind(Weighing::KIND) {
+            if let LabBody::Weighing(w) = mini_for_weighings.current_of(e).as_ref() {
+                days.entry(w.balance)
+                    .or_default()
+                    .insert(rules::day_of(w.first_at));
+            }
+        }
+        for (balance, used) in &days {
+            if let Some(records) = self.balances.get(balance) {
+                all.extend(records.entries.iter().cloned());
+                for day in used {
+                    if let Some(checks) = records.checks_by_day.get(day) {
+                        all.extend(checks.iter().cloned());
+                    }
+                }
+            } else if let Some(found) = self.load(balance)? {
+                all.extend(self.load_with_corrections(found)?);
+            }
+        }
+        let catalog = Catalog::from_entries(all);
+        let memory = self.memory.take().unwrap_or_default();
+        let mut recomputer = Recomputer::with_memory(&catalog, memory);
+        let mut recomputed = vec![(run, recomputer.run(run))];
+        if let Some(std_hash) = standardization {
+            recomputed.push((std_hash, recomputer.run(std_hash)));
+        }
+        self.memory = Some(recomputer.into_memory());
+        let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), recomputed);
+        let Some(view) = evidence.run(&run) else {
+            return Ok(());
+        };
+        let in_scope = self.in_scope(view.id(), view.sample_id());
+        let run_seq = view.entry.seq;
+        // Fingerprints of the run's weighings, for PAT-02.
+        let weighings: Vec<(EntryRef, Weighing)> = rules::weighings_of(&catalog, view)
+            .into_iter()
+            .map(|(e, w)| (entry_ref(e), w))
+            .collect();
+        let failing = if view.run.kind == RunKind::Assay {
+            rules::out_of_spec::decision_of(&evidence, view)
+                .filter(|(decision, _): &(Decision, _)| !decision.conforms())
+                .map(|(_, result)| {
+                    let subjects: Vec<EntryHash> =
+                        std::iter::once(run).chain(result.map(|r| r.hash)).collect();
+                    let investigation_seq = catalog
+                        .of_kind("lab.oos")
+                        .filter(
+                            |e| matches!(&e.body, LabBody::Oos(o) if subjects.contains(&o.subject)),
+                        )
+                        .map(|e| e.seq)
+                        .min()
+                        .unwrap_or(u64::MAX);
+                    (view.run.sample, view.id().to_string(), investigation_seq)
+                })
+        } else {
+            None
+        };
+        let (judged, summary) = if in_scope {
+            let findings: Vec<Finding> = rules::evaluate(&evidence)
+                .into_iter()
+                .filter(|f| f.run.as_deref() == Some(view.id()) && !CROSS_RUN.contains(&f.code))
+                .collect();
+            let summary = summarize(&evidence, view, &findings);
+            (Some(findings), Some(summary))
+        } else {
+            (None, None)
+        };
+        drop(evidence);
+        match failing {
+            Some((Some(sample), run_id, investigation_seq)) => {
+                self.failing.insert(
+                    run_seq,
+                    Failing {
+                        run_seq,
+                        run_id,
+                        sample,
+                        investigation_seq,
+                    },
+                );
+            }
+            _ => {
+                self.failing.remove(&run_seq);
+            }
+        }
+        for (at, w) in weighings {
+            self.remember_fingerprint(run_seq, at, &w);
+        }
+        if let (Some(findings), Some(summary)) = (judged, summary) {
+            self.scope_found = true;
+            self.judged.insert(run_seq, (findings, summary));
+        }
+        if is_standardization {
+            let kept = Arc::new(catalog_entries_of(&own));
+            self.standardizations.retain(|(h, _)| *h != run);
+            self.standardizations.push_back((run, kept));
+            while self.standardizations.len() > STANDARDIZATIONS_KEPT {
+                self.standardizations.pop_front();
+            }
+        }
+        Ok(())
+    }
+
+    /// Remembers a weighing's readings; a match from another run is a `PAT-02` candidate.
+    fn remember_fingerprint(&mut self, run_seq: u64, at: EntryRef, w: &Weighing) {
+        let mut hasher = std::collections::hash_map::DefaultHasher::new();
+        (
+            w.balance,
+            &w.first.value,
+            &w.second.value,
+            w.first.unit.to_string(),
+        )
+            .hash(&mut hasher);
+        let key = hasher.finish();
+        match self.fingerprints.get(&key) {
+            Some((earlier_run, earlier)) if *earlier_run != run_seq => {
+                let group = self.reused.entry(key).or_default();
+                if group.is_empty() {
+                    group.push((*earlier_run, *earlier));
+                }
+                if !group.iter().any(|(_, e)| e.seq == at.seq) {
+                    group.push((run_seq, at));
+                }
+            }
+            Some(_) => {}
+            None => {
+                self.fingerprints.insert(key, (run_seq, at));
+                self.fingerprint_order.push_back(key);
+                if self.fingerprint_order.len() > self.options.fingerprint_horizon {
+                    if let Some(old) = self.fingerprint_order.pop_front() {
+                        self.fingerprints.remove(&old);
+                    }
+                }
+            }
+        }
+    }
+
+    /// Judges what is left, then what came late, then the cross-run rules.
+    fn finish(mut self) -> Result<Judged, LedgerError> {
+        while let Some((_, bucket)) = self.buckets.pop_first() {
+            self.judge_run(bucket.run, bucket.entries)?;
+        }
+        self.owner.clear();
+        // Late arrivals: the run again, and the assays relying on a standardization.
+        let mut again: BTreeSet<EntryHash> = std::mem::take(&mut self.again);
+        for run in again.clone() {
+            for e in self.naming(&run)? {
+                if matches!(&e.body, LabBody::Run(r) if r.standardization == Some(run)) {
+                    again.insert(e.hash);
+                }
+            }
+        }
+        let mut ordered: Vec<(u64, EntryHash)> = again
+            .into_iter()
+            .filter_map(|h| self.seq_of(&h).map(|seq| (seq, h)))
+            .collect();
+        ordered.sort();
+        for (_, run) in ordered {
+            self.standardizations.retain(|(h, _)| *h != run);
+            let entries = self.load_run(&run)?;
+            self.judge_run(run, entries)?;
+        }
+        self.failed_check_impact()?;
+        self.retests()?;
+        self.reused_readings()?;
+        let mut findings = std::mem::take(&mut self.cross_run);
+        let mut runs = Vec::new();
+        let mut runs_checked = 0;
+        for (_, (run_findings, summary)) in std::mem::take(&mut self.judged) {
+            runs_checked += 1;
+            let keep = self.scope != Scope::Ledger || !run_findings.is_empty();
+            findings.extend(run_findings);
+            if keep {
+                runs.push(summary);
+            }
+        }
+        // Cross-run findings count towards their run's summary too.
+        for summary in &mut runs {
+            summary.findings = Tally::of(
+                &findings
+                    .iter()
+                    .filter(|f| f.run.as_deref() == Some(summary.run.as_str()))
+                    .cloned()
+                    .collect::<Vec<_>>(),
+            );
+        }
+        Ok(Judged {
+            defects: self.defects,
+            findings,
+            runs,
+            runs_checked,
+            scope_found: self.scope_found,
+        })
+    }
+
+    /// The run entry stored under `hash`, as (sequence number, id, sample id).
+    fn run_identity(
+        &self,
+        hash: &EntryHash,
+    ) -> Result<Option<(u64, String, Option<String>)>, LedgerError> {
+        let Some(entry) = self.load(hash)? else {
+            return Ok(None);
+        };
+        let entries = self.load_with_corrections(entry.clone())?;
+        let catalog = Catalog::from_entries(entries);
+        let Some(LabBody::Run(run)) = catalog.current(hash) else {
+            return Ok(None);
+        };
+        let sample = match run.sample {
+            Some(s) => match self.load(&s)? {
+                Some(found) => {
+                    let catalog = Catalog::from_entries(self.load_with_corrections(found)?);
+                    match catalog.current(&s) {
+                        Some(LabBody::Sample(sample)) => Some(sample.id),
+                        _ => None,
+                    }
+                }
+                None => None,
+            },
+            None => None,
+        };
+        Ok(Some((entry.seq, run.id, sample)))
+    }
+
+    /// `BAL-05`: every run weighed on a balance after its last passing check and before a
+    /// check that failed. Weighings are looked for among the entries recorded within a window
+    /// of those two checks.
+    fn failed_check_impact(&mut self) -> Result<(), LedgerError> {
+        let failed = std::mem::take(&mut self.failed_checks);
+        for f in failed {
+            let low = f.since_seq.saturating_sub(self.options.window);
+            let high = f.check.seq + self.options.window;
+            let name = self
+                .balances
+                .get(&f.balance)
+                .and_then(|r| {
+                    r.entries.iter().find_map(|e| match &e.body {
+                        LabBody::Balance(b) => Some(b.id.clone()),
+                        _ => None,
+                    })
+                })
+                .map_or_else(
+                    || format!("balance {}", f.balance),
+                    |id| format!("balance {id}"),
+                );
+            let mut affected: BTreeMap<EntryHash, Vec<EntryRef>> = BTreeMap::new();
+            for seq in self.store.referencing(&f.balance)? {
+                if seq < low || seq > high || seq > self.walked {
+                    continue;
+                }
+                let Some(entry) = self.store.entry(seq)? else {
+                    continue;
+                };
+                let Ok(Some(lab)) = Catalog::decode_entry(entry) else {
+                    continue;
+                };
+                let current = Catalog::from_entries(self.load_with_corrections(lab.clone())?);
+                if let Some(LabBody::Weighing(w)) = current.current(&lab.hash) {
+                    if w.first_at >= f.since && w.first_at < f.at {
+                        affected.entry(w.run).or_default().push(entry_ref(&lab));
+                    }
+                }
+            }
+            let mut by_seq: Vec<(u64, String, Option<String>, Vec<EntryRef>)> = Vec::new();
+            for (run, weighings) in affected {
+                if let Some((seq, id, sample)) = self.run_identity(&run)? {
+                    if self.in_scope(&id, sample.as_deref()) {
+                        let mut involved = weighings;
+                        involved.push(EntryRef { seq, hash: run });
+                        by_seq.push((seq, id, sample, involved));
+                    }
+                }
+            }
+            by_seq.sort_by_key(|(seq, ..)| *seq);
+            for (_, id, sample, involved) in by_seq {
+                self.cross_run.push(
+                    Finding::new(
+                        Code::WeighedBeforeFailedCheck,
+                        format!(
+                            "run {id} was weighed on {name} after its last passing check and before the check that failed at {}",
+                            rules::when(f.at)
+                        ),
+                        "USP <41>; impact assessment of a failed check",
+                    )
+                    .about_run(Some(&id), sample.as_deref())
+                    .involving(involved)
+                    .involving([entry_ref(&f.check)]),
+                );
+            }
+        }
+        Ok(())
+    }
+
+    /// `OOS-02`: a later assay of a failing sample recorded before any investigation.
+    fn retests(&mut self) -> Result<(), LedgerError> {
+        let failing = std::mem::take(&mut self.failing);
+        for f in failing.values() {
+            let mut retests: Vec<(u64, EntryHash)> = Vec::new();
+            for e in self.naming(&f.sample)? {
+                if let LabBody::Run(r) = &e.body {
+                    if r.kind == RunKind::Assay && e.seq > f.run_seq && e.seq < f.investigation_seq
+                    {
+                        retests.push((e.seq, e.hash));
+                    }
+                }
+            }
+            for (_, retest) in retests {
+                let Some((seq, id, sample)) = self.run_identity(&retest)? else {
+                    continue;
+                };
+                if !self.in_scope(&id, sample.as_deref()) {
+                    continue;
+                }
+                let failed_hash = self
+                    .store
+                    .entry(f.run_seq)?
+                    .map(|e| e.hash)
+                    .unwrap_or(EntryHash::ZERO);
+                self.cross_run.push(
+                    Finding::new(
+                        Code::RetestBeforeInvestigation,
+                        format!(
+                            "run {id} retests sample {} after run {} failed, before any investigation was opened",
+                            sample.as_deref().unwrap_or("?"),
+                            f.run_id
+                        ),
+                        "FDA OOS guidance: investigate before retesting",
+                    )
+                    .about_run(Some(&id), sample.as_deref())
+                    .involving([EntryRef { seq, hash: retest }])
+                    .involving([EntryRef {
+                        seq: f.run_seq,
+                        hash: failed_hash,
+                    }]),
+                );
+            }
+        }
+        Ok(())
+    }
+
+    /// `PAT-02`: one finding per reading pair seen in more than one run, about the latest.
+    fn reused_readings(&mut self) -> Result<(), LedgerError> {
+        let reused = std::mem::take(&mut self.reused);
+        let mut groups: Vec<Vec<(u64, EntryRef)>> = reused.into_values().collect();
+        groups.sort_by_key(|g| g.iter().map(|(_, e)| e.seq).min().unwrap_or(0));
+        for group in groups {
+            let mut runs: Vec<u64> = group.iter().map(|(r, _)| *r).collect();
+            runs.sort_unstable();
+            runs.dedup();
+            if runs.len() < 2 {
+                continue;
+            }
+            let latest = group.iter().max_by_key(|(_, e)| e.seq).expect("non-empty");
+            let Some(latest_run) = self.store.entry(latest.0)? else {
+                continue;
+            };
+            let Some((_, id, sample)) = self.run_identity(&latest_run.hash)? else {
+                continue;
+            };
+            if !self.in_scope(&id, sample.as_deref()) {
+                continue;
+            }
+            let mut others = Vec::new();
+            for run_seq in runs.iter().filter(|s| **s != latest.0) {
+                if let Some(entry) = self.store.entry(*run_seq)? {
+                    if let Some((_, other, _)) = self.run_identity(&entry.hash)? {
+                        others.push(other);
+                    }
+                }
+            }
+            self.cross_run.push(
+                Finding::new(
+                    Code::ReadingReused,
+                    format!(
+                        "run {id} has a weighing (entry {}) with the same balance and readings as run {}",
+                        latest.1.seq,
+                        others.join(", ")
+                    ),
+                    "one observation belongs to one sample",
+                )
+                .about_run(Some(&id), sample.as_deref())
+                .involving(group.iter().map(|(_, e)| *e))
+                .involving([EntryRef {
+                    seq: latest_run.seq,
+                    hash: latest_run.hash,
+                }]),
+            );
+        }
+        Ok(())
+    }
+}
+
+/// Every entry of a catalog, in sequence order.
+fn catalog_entries_of(catalog: &Catalog) -> Vec<CatalogEntry> {
+    catalog.entries().to_vec()
+}
