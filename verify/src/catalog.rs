@@ -345,7 +345,7 @@ impl Catalog {
         self.slots.get(hash).map(|slot| &self.entries[*slot])
     }
 
-    /// The body now in force: the latest correction's replacement, else the original.
+    /// The body now in force: the latest signed correction's replacement, else the original.
     pub fn current(&self, hash: &EntryHash) -> Option<LabBody> {
         self.current_ref(hash).map(Cow::into_owned)
     }
@@ -354,8 +354,15 @@ impl Catalog {
     /// it, so reading an uncorrected entry copies nothing.
     pub fn current_ref(&self, hash: &EntryHash) -> Option<Cow<'_, LabBody>> {
         let original = self.entry(hash)?;
-        let latest = self.corrections.get(hash).and_then(|list| list.last());
-        if let Some(LabBody::Correction(c)) = latest.map(|slot| &self.resolve(*slot).body) {
+        // An unsigned correction is not attributable: it stays visible (and INT-03 flags it)
+        // but never replaces what a person signed.
+        let latest = self.corrections.get(hash).and_then(|list| {
+            list.iter()
+                .rev()
+                .map(|slot| self.resolve(*slot))
+                .find(|entry| entry.signed)
+        });
+        if let Some(LabBody::Correction(c)) = latest.map(|entry| &entry.body) {
             if check_body(&c.kind, &c.replacement).is_ok() {
                 if let Ok(Some(body)) = LabBody::decode(&c.kind, &c.replacement) {
                     return Some(Cow::Owned(body));
@@ -788,6 +795,19 @@ endpoint = "faint pink persisting 30 s"
         assert_eq!(w.second.value, "18.1617");
         assert_eq!(corrected.current(&original), Some(LabBody::Weighing(w)));
         assert!(matches!(entry.body, LabBody::Weighing(ref o) if o.second.value == "18.1616"));
+
+        // The same correction without a signature (as only a foreign writer could store it)
+        // stays listed but is not in force.
+        let mut unsigned: Vec<CatalogEntry> = corrected.entries().to_vec();
+        for e in unsigned.iter_mut().filter(|e| e.kind == Correction::KIND) {
+            e.signed = false;
+        }
+        let unsigned = Catalog::from_entries(unsigned);
+        assert_eq!(unsigned.corrections_of(&original).len(), 1);
+        assert!(matches!(
+            unsigned.current(&original),
+            Some(LabBody::Weighing(ref o)) if o.second.value == "18.1616"
+        ));
     }
 
     #[test]
