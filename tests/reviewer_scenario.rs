@@ -10,10 +10,8 @@
 //! balance check earlier the same UTC day. The two entries no honest use of the command line can
 //! write are written the way another program would: the unsigned correction as a raw row through
 //! the ledger's storage layer (chained and hashed, no signer, no signature), and the self-review
-//! through the ledger library, because `assize sign` refuses it. The root package depends on
-//! `assize-ledger` only, so both bodies are encoded here as plain CBOR (RFC 8949) in the field
-//! order of `assize_verify::records::{Correction, SignOff}`; a mistake in that encoding would
-//! show as an extra `INT-08` finding and fail the test.
+//! through the ledger library, because `assize sign` refuses it. Both bodies are the real
+//! `assize_verify::records::{Correction, SignOff}` records.
 //!
 //! All data is invented. Stoichiometry 2 MnO4- : 5 C2O4^2- and 2 MnO4- : 5 H2O2: common practice
 //! / REFERENCES.md §7. Atomic weights used to choose the readings: CIAAW 2021 abridged values as
@@ -23,10 +21,8 @@ mod common;
 
 use assize_ledger::keyfile::unlock_key_file;
 use assize_ledger::store::{EntryFilter, Store};
-use assize_ledger::{
-    Clock, Draft, Entry, EntryHash, KindRule, KindRules, Ledger, OpenMode, Role, RoleSet,
-    SignatureRule, SystemClock, Timestamp,
-};
+use assize_ledger::{Clock, Draft, Entry, EntryHash, Ledger, OpenMode, SystemClock, Timestamp};
+use assize_verify::records::{Correction, Meaning, SignOff};
 use common::assize_binary;
 use serde_json::Value;
 use std::path::{Path, PathBuf};
@@ -646,57 +642,8 @@ fn build(case: Case) -> Bench {
 }
 
 // ---------------------------------------------------------------------------------------------
-// What another program writes: plain CBOR bodies, a raw row, a library append.
+// What another program writes: a raw row, a library append.
 // ---------------------------------------------------------------------------------------------
-
-/// A CBOR data item (RFC 8949), only the types the two bodies need.
-enum Cbor<'a> {
-    Uint(u64),
-    Bytes(&'a [u8]),
-    Text(&'a str),
-}
-
-/// Major type and argument in the shortest form (RFC 8949 §3, preferred serialization).
-fn cbor_head(out: &mut Vec<u8>, major: u8, argument: u64) {
-    let major = major << 5;
-    if argument < 24 {
-        out.push(major | argument as u8);
-    } else if let Ok(a) = u8::try_from(argument) {
-        out.extend([major | 24, a]);
-    } else if let Ok(a) = u16::try_from(argument) {
-        out.push(major | 25);
-        out.extend(a.to_be_bytes());
-    } else if let Ok(a) = u32::try_from(argument) {
-        out.push(major | 26);
-        out.extend(a.to_be_bytes());
-    } else {
-        out.push(major | 27);
-        out.extend(argument.to_be_bytes());
-    }
-}
-
-/// A map with text keys in the given order: how a struct is stored (fields in declaration
-/// order, definite lengths).
-fn cbor_struct(fields: &[(&str, Cbor<'_>)]) -> Vec<u8> {
-    let mut out = Vec::new();
-    cbor_head(&mut out, 5, fields.len() as u64);
-    for (name, value) in fields {
-        cbor_head(&mut out, 3, name.len() as u64);
-        out.extend(name.as_bytes());
-        match value {
-            Cbor::Uint(n) => cbor_head(&mut out, 0, *n),
-            Cbor::Bytes(b) => {
-                cbor_head(&mut out, 2, b.len() as u64);
-                out.extend(*b);
-            }
-            Cbor::Text(t) => {
-                cbor_head(&mut out, 3, t.len() as u64);
-                out.extend(t.as_bytes());
-            }
-        }
-    }
-    out
-}
 
 /// The `lab.run` entry of `run_id`.
 fn run_entry(store: &Store, run_id: &str) -> Entry {
@@ -745,26 +692,26 @@ fn forge_unsigned_correction(bench: &Bench) -> u64 {
         .expect("end point text in the replicate's body");
     let mut replacement = target.body.clone();
     replacement[at..at + ENDPOINT.len()].copy_from_slice(CORRECTED_ENDPOINT.as_bytes());
-    // assize_verify::records::Correction { supersedes, kind, replacement, reason }
-    let body = cbor_struct(&[
-        ("supersedes", Cbor::Bytes(&target.hash.0)),
-        ("kind", Cbor::Text("lab.replicate")),
-        ("replacement", Cbor::Bytes(&replacement)),
-        (
-            "reason",
-            Cbor::Text("end point held 20 s, misread from the bench timer"),
-        ),
-    ]);
+    let draft = Draft::of_record(
+        ANALYST,
+        &Correction {
+            supersedes: target.hash,
+            kind: "lab.replicate".into(),
+            replacement,
+            reason: "end point held 20 s, misread from the bench timer".into(),
+        },
+    )
+    .expect("encode the correction");
     let tx = store.begin_append().expect("write lock");
     let head = tx.head().expect("head").expect("a head");
     let mut entry = Entry {
         seq: head.seq + 1,
         prev_hash: head.hash,
         record_time: SystemClock.now().max(head.record_time),
-        author: ANALYST.into(),
-        kind: "lab.correction".into(),
-        references: vec![target.hash],
-        body,
+        author: draft.author,
+        kind: draft.kind,
+        references: draft.references,
+        body: draft.body,
         signer: None,
         signature: None,
         hash: EntryHash::ZERO,
@@ -778,38 +725,32 @@ fn forge_unsigned_correction(bench: &Bench) -> u64 {
 /// Appends through the ledger library a `lab.sign-off` (reviewed) of the assay run by the second
 /// analyst, now a reviewer, who recorded its third replicate. Returns its sequence number.
 fn append_self_review(bench: &Bench, report_sha256: &str) -> u64 {
-    // The rule `assize_verify::records::lab_kind_rules` gives this kind: reviewer or QA, signed.
-    let rules = KindRules::core().with(
-        "lab.sign-off",
-        KindRule {
-            roles: RoleSet::of(&[Role::Reviewer, Role::Qa]),
-            signature: SignatureRule::Required,
-        },
-    );
     let path = bench.path(LEDGER);
-    let mut ledger = Ledger::open(&path, OpenMode::ReadWrite, rules, Arc::new(SystemClock))
-        .expect("open ledger");
+    let mut ledger = Ledger::open(
+        &path,
+        OpenMode::ReadWrite,
+        assize_verify::kind_rules(),
+        Arc::new(SystemClock),
+    )
+    .expect("open ledger");
     let signer = unlock_key_file(&bench.path(&Bench::key(SECOND_ANALYST)), PASSPHRASE)
         .expect("unlock the second analyst's key file");
     let assay = run_entry(ledger.store(), ASSAY);
     let head = ledger.head().expect("head").expect("a head");
-    // assize_verify::records::SignOff { subject, meaning, based_on_seq, based_on,
-    // report_sha256, comment, justification }
-    let body = cbor_struct(&[
-        ("subject", Cbor::Bytes(&assay.hash.0)),
-        ("meaning", Cbor::Text("reviewed")),
-        ("based_on_seq", Cbor::Uint(head.seq)),
-        ("based_on", Cbor::Bytes(&head.hash.0)),
-        ("report_sha256", Cbor::Text(report_sha256)),
-        ("comment", Cbor::Text("checked against the worksheet")),
-        ("justification", Cbor::Text("")),
-    ]);
-    let draft = Draft {
-        kind: "lab.sign-off".into(),
-        author: SECOND_ANALYST.into(),
-        references: vec![assay.hash, head.hash],
-        body,
-    };
+    // Built directly: `assize_verify::signoff::prepare`, which the CLI uses, refuses it.
+    let draft = Draft::of_record(
+        SECOND_ANALYST,
+        &SignOff {
+            subject: assay.hash,
+            meaning: Meaning::Reviewed,
+            based_on_seq: head.seq,
+            based_on: head.hash,
+            report_sha256: Some(report_sha256.to_string()),
+            comment: "checked against the worksheet".into(),
+            justification: String::new(),
+        },
+    )
+    .expect("encode the sign-off");
     let entry = ledger
         .append(draft, Some(&signer))
         .expect("the library appends what the CLI refuses");

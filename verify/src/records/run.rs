@@ -106,7 +106,7 @@ pub enum WeighingMode {
 }
 
 /// Where a reading came from.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Source {
     /// Typed by a person from the display or a printout.

@@ -4,7 +4,7 @@
 use super::{entry_ref, Evidence, RunView};
 use crate::catalog::{CatalogEntry, LabBody};
 use crate::findings::{Code, Finding};
-use crate::records::{Portion, Replicate, RunKind, Titration, Weighing};
+use crate::records::{Portion, Replicate, RunKind, Source, Titration, Weighing};
 use assize_ledger::EntryHash;
 use assize_ledger::Record;
 use std::collections::HashSet;
@@ -36,14 +36,15 @@ fn orphans(evidence: &Evidence<'_>, run: &RunView<'_>, out: &mut Vec<Finding>) {
             _ => {}
         }
     }
-    // A captured twin of a keyed weighing (same replicate and portion) is the original of the
-    // same observation, not orphan data; CAP-01 compares the two.
-    let used_slots: HashSet<(u32, Portion)> = run
+    // A captured twin of a keyed weighing (same replicate and portion, the other source) is
+    // the original of the same observation, not orphan data; CAP-01 compares the two. A second
+    // weighing from the same source is a re-weighing, and orphan unless invalidated.
+    let used_slots: HashSet<(u32, Portion, Source)> = run
         .entries
         .iter()
         .filter(|e| used.contains(&e.hash))
         .filter_map(|e| match catalog.current_of(e).as_ref() {
-            LabBody::Weighing(w) => Some((w.replicate, w.portion)),
+            LabBody::Weighing(w) => Some((w.replicate, w.portion, w.source)),
             _ => None,
         })
         .collect();
@@ -54,7 +55,13 @@ fn orphans(evidence: &Evidence<'_>, run: &RunView<'_>, out: &mut Vec<Finding>) {
         .filter(|e| e.kind == Weighing::KIND || e.kind == Titration::KIND)
         .filter(|e| !used.contains(&e.hash))
         .filter(|e| match catalog.current_of(e).as_ref() {
-            LabBody::Weighing(w) => !used_slots.contains(&(w.replicate, w.portion)),
+            LabBody::Weighing(w) => {
+                let other = match w.source {
+                    Source::Keyed => Source::Captured,
+                    Source::Captured => Source::Keyed,
+                };
+                !used_slots.contains(&(w.replicate, w.portion, other))
+            }
             _ => true,
         })
         .collect();

@@ -96,7 +96,8 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     }
 }
 
-/// What a standardization fails of the policy's limits (count is COMP-02's).
+/// What a standardization fails of the policy's limits on RSD and strength (too few
+/// titrations is COMP-02's, which counts against the policy's minimum too).
 fn standardization_problems(run: &RunView<'_>, nominal: Option<&str>) -> Vec<String> {
     let mut problems = Vec::new();
     let (Some(policy), Ok(recomputed)) = (run.policy(), &run.recomputed) else {
@@ -112,13 +113,6 @@ fn standardization_problems(run: &RunView<'_>, nominal: Option<&str>) -> Vec<Str
                 "has an RSD of {rsd:.3} %, above the {limit} % limit (titrants.standardization_max_rsd_percent)"
             ));
         }
-    }
-    if outcome.replicates.len() < policy.titrants.standardization_min_replicates as usize {
-        problems.push(format!(
-            "rests on {} titrations, fewer than {} (titrants.standardization_min_replicates)",
-            outcome.replicates.len(),
-            policy.titrants.standardization_min_replicates
-        ));
     }
     if let (Some(nominal), Some(within)) = (
         nominal.and_then(setting_f64),

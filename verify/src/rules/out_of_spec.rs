@@ -188,9 +188,17 @@ fn invalidations(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
         if !analysts.contains(&entry.author) {
             continue;
         }
+        let results: Vec<EntryHash> = run
+            .entries
+            .iter()
+            .filter(|e| matches!(e.body, LabBody::Result(_)))
+            .map(|e| e.hash)
+            .collect();
         let approved = sign_offs.iter().any(|(s_entry, s)| {
             s.meaning == Meaning::Approved
-                && (s.subject == entry.hash || s.subject == run.entry.hash)
+                && (s.subject == entry.hash
+                    || s.subject == run.entry.hash
+                    || results.contains(&s.subject))
                 && s.based_on_seq >= entry.seq
                 && !analysts.contains(&s_entry.author)
         });
