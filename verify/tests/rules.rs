@@ -1514,3 +1514,48 @@ fn per_01_silent_for_one_correction_and_for_the_clean_scenario() {
     let findings = periodic_findings(&mut clean);
     assert!(findings.is_empty(), "{}", listing(&findings));
 }
+
+#[test]
+fn periodic_review_counts_per_analyst_and_samples_reproducibly() {
+    let mut built = build(&three_runs_with_corrections(2));
+    let validation = validation(&built);
+    let catalog = Catalog::load(built.ledger.store()).expect("catalog");
+    let evidence = Evidence::gather(&catalog);
+    let registry = built.ledger.registry().expect("registry").clone();
+    let review = |seed: u64, random: usize| {
+        let request = periodic::Request {
+            from: day("2026-11-20"),
+            to: day("2026-11-30"),
+            seed,
+            random,
+        };
+        periodic::review(&evidence, &validation, &registry, &request)
+    };
+    let first = review(48, 2);
+    assert_eq!(first.runs, 3);
+    assert_eq!(first.lab.corrections, 2);
+    let analyst = first
+        .by_analyst
+        .iter()
+        .find(|r| r.name == Who::Analyst2.person())
+        .expect("the second analyst's row");
+    assert_eq!((analyst.runs, analyst.corrections), (1, 2));
+    // The same seed picks the same runs; over many seeds every run gets picked.
+    assert_eq!(first.random_sample, review(48, 2).random_sample);
+    assert_eq!(first.random_sample.len(), 2);
+    let picked: std::collections::BTreeSet<String> = (0..40)
+        .flat_map(|seed| review(seed, 1).random_sample.into_iter().map(|p| p.run))
+        .collect();
+    assert_eq!(picked.len(), 3, "{picked:?}");
+    // The corrected run is targeted, with its reason.
+    assert!(
+        first
+            .targeted_sample
+            .iter()
+            .any(|p| p.reason.contains("2 correction(s)")),
+        "{:?}",
+        first.targeted_sample
+    );
+    // Everyone who held a role or key in the period is listed.
+    assert_eq!(first.people.len(), 4, "{:?}", first.people);
+}
