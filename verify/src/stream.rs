@@ -176,11 +176,29 @@ struct Bucket {
 /// A balance and what is recorded about it.
 #[derive(Default)]
 struct BalanceRecords {
+    /// The balance entry and its calibrations, with corrections of any of them.
     entries: Vec<CatalogEntry>,
-    /// Routine checks by UTC day of observation.
-    checks_by_day: BTreeMap<NaiveDate, Vec<CatalogEntry>>,
-    /// Routine checks with their verdict, by observation time (for failed-check impact).
-    verdicts: Vec<(Timestamp, u64, bool)>,
+    /// Routine checks, with corrections of them, in the order walked.
+    checks: Vec<CatalogEntry>,
+    /// Check entries by UTC day of observation (as recorded and as corrected).
+    checks_by_day: BTreeMap<NaiveDate, Vec<EntryHash>>,
+}
+
+impl BalanceRecords {
+    /// The checks observed on `day`, with every correction of them.
+    fn checks_on(&self, day: NaiveDate) -> Vec<CatalogEntry> {
+        let Some(hashes) = self.checks_by_day.get(&day) else {
+            return Vec::new();
+        };
+        self.checks
+            .iter()
+            .filter(|c| {
+                hashes.contains(&c.hash)
+                    || matches!(&c.body, LabBody::Correction(k) if hashes.contains(&k.supersedes))
+            })
+            .cloned()
+            .collect()
+    }
 }
 
 /// A lot, titrant or sample, with its corrections.
@@ -192,7 +210,7 @@ struct Material {
 /// A failed routine check, for `BAL-05` at the end.
 struct FailedCheck {
     balance: EntryHash,
-    check: CatalogEntry,
+    check: EntryRef,
     at: Timestamp,
     since: Timestamp,
     since_seq: u64,
@@ -227,8 +245,10 @@ struct Stream {
     again: BTreeSet<EntryHash>,
     defects: Vec<Defect>,
     cross_run: Vec<Finding>,
-    failed_checks: Vec<FailedCheck>,
     failing: BTreeMap<u64, Failing>,
+    /// Runs already judged that weighed on a balance on a day (recent days only), to judge
+    /// again when a check or calibration for that day arrives late.
+    runs_by_balance_day: BTreeMap<(EntryHash, NaiveDate), Vec<EntryHash>>,
     fingerprints: HashMap<u64, (u64, EntryRef)>,
     fingerprint_order: VecDeque<u64>,
     reused: BTreeMap<u64, Vec<(u64, EntryRef)>>,
@@ -255,8 +275,8 @@ impl Stream {
             again: BTreeSet::new(),
             defects: Vec::new(),
             cross_run: Vec::new(),
-            failed_checks: Vec::new(),
             failing: BTreeMap::new(),
+            runs_by_balance_day: BTreeMap::new(),
             fingerprints: HashMap::new(),
             fingerprint_order: VecDeque::new(),
             reused: BTreeMap::new(),
@@ -307,11 +327,13 @@ impl Stream {
             LabBody::Calibration(c) => {
                 self.balance_of.insert(entry.hash, c.balance);
                 let balance = c.balance;
+                let from = NaiveDate::parse_from_str(&c.performed_on, "%Y-%m-%d").ok();
                 self.balances
                     .entry(balance)
                     .or_default()
                     .entries
                     .push(entry);
+                self.judge_again_after(balance, from);
                 return Ok(());
             }
             LabBody::BalanceCheck(_) => return self.file_check(entry),
@@ -374,17 +396,38 @@ impl Stream {
     fn file_outside_runs(&mut self, entry: &CatalogEntry, target: EntryHash) -> bool {
         let filed = if let Some(m) = self.materials.get_mut(&target) {
             m.entries.push(entry.clone());
+            self.judge_again_naming(&target);
             true
         } else if let Some(b) = self.balances.get_mut(&target) {
             b.entries.push(entry.clone());
+            self.judge_again_after(target, None);
             true
-        } else if let Some(balance) = self.balance_of.get(&target) {
-            let records = self.balances.entry(*balance).or_default();
-            records.entries.push(entry.clone());
-            for checks in records.checks_by_day.values_mut() {
-                if checks.iter().any(|c| c.hash == target) {
-                    checks.push(entry.clone());
+        } else if let Some(&balance) = self.balance_of.get(&target) {
+            let records = self.balances.entry(balance).or_default();
+            let is_check = records.checks.iter().any(|c| c.hash == target);
+            if is_check {
+                records.checks.push(entry.clone());
+                let mut days: Vec<NaiveDate> = records
+                    .checks_by_day
+                    .iter()
+                    .filter(|(_, hashes)| hashes.contains(&target))
+                    .map(|(day, _)| *day)
+                    .collect();
+                if let LabBody::Correction(c) = &entry.body {
+                    if let Ok(Some(LabBody::BalanceCheck(k))) =
+                        LabBody::decode(&c.kind, &c.replacement)
+                    {
+                        let day = rules::day_of(k.observed_at);
+                        records.checks_by_day.entry(day).or_default().push(target);
+                        days.push(day);
+                    }
                 }
+                for day in days {
+                    self.judge_again_on(balance, day);
+                }
+            } else {
+                records.entries.push(entry.clone());
+                self.judge_again_after(balance, None);
             }
             true
         } else if self.adoptions.iter().any(|a| a.hash == target) {
@@ -439,6 +482,7 @@ impl Stream {
                         last_used: self.walked,
                     },
                 );
+                self.judge_again_naming(&target);
                 true
             }
             _ => false,
@@ -449,58 +493,110 @@ impl Stream {
         self.store.seq_of_hash(hash).ok().flatten()
     }
 
-    /// A routine balance check: filed by day; `BAL-04` and `TIM-01` judged now, by the policy
-    /// adopted most recently before it.
+    /// A routine balance check, filed by its day of observation; a run already judged that
+    /// weighed on that balance that day is judged again at the end. The check's own findings
+    /// (`BAL-04`, `TIM-01`) are made at the end, with its corrections applied.
     fn file_check(&mut self, entry: CatalogEntry) -> Result<(), LedgerError> {
         let LabBody::BalanceCheck(check) = &entry.body else {
             unreachable!("called for checks")
         };
         self.balance_of.insert(entry.hash, check.balance);
         let balance = check.balance;
-        let at = check.observed_at;
-        // Judge the check alone, in a catalog of the adoptions, the balance and the check.
-        let mut entries = self.adoptions.clone();
-        if let Some(records) = self.balances.get(&balance) {
-            entries.extend(records.entries.iter().cloned());
-        }
-        entries.push(entry.clone());
-        let catalog = Catalog::from_entries(entries);
-        let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
-        let mut findings = Vec::new();
-        rules::balances::check(&evidence, &mut findings);
-        rules::timeliness::check(&evidence, &mut findings);
-        let failed = findings.iter().any(|f| {
-            f.code == Code::BalanceCheckFailed && f.entries.iter().any(|e| e.hash == entry.hash)
-        });
-        self.cross_run.extend(
-            findings
-                .into_iter()
-                .filter(|f| f.entries.iter().any(|e| e.hash == entry.hash) && f.run.is_none()),
-        );
+        let day = rules::day_of(check.observed_at);
         let records = self.balances.entry(balance).or_default();
-        if failed {
-            let (since, since_seq) = records
-                .verdicts
-                .iter()
-                .rev()
-                .find(|(t, _, passed)| *passed && *t <= at)
-                .map_or((Timestamp(i64::MIN), 0), |(t, seq, _)| (*t, *seq));
-            self.failed_checks.push(FailedCheck {
-                balance,
-                check: entry.clone(),
-                at,
-                since,
-                since_seq,
-            });
-        }
-        records.verdicts.push((at, entry.seq, !failed));
-        records.verdicts.sort();
         records
             .checks_by_day
-            .entry(rules::day_of(at))
+            .entry(day)
             .or_default()
-            .push(entry);
+            .push(entry.hash);
+        records.checks.push(entry);
+        self.judge_again_on(balance, day);
         Ok(())
+    }
+
+    /// Runs already judged that weighed on `balance` on `day` are judged again at the end.
+    fn judge_again_on(&mut self, balance: EntryHash, day: NaiveDate) {
+        if let Some(runs) = self.runs_by_balance_day.get(&(balance, day)) {
+            self.again.extend(runs.iter().copied());
+        }
+    }
+
+    /// Runs already judged that weighed on `balance` on or after `from` (every day when
+    /// `None`) are judged again at the end.
+    fn judge_again_after(&mut self, balance: EntryHash, from: Option<NaiveDate>) {
+        let from = from.unwrap_or(NaiveDate::MIN);
+        for ((b, day), runs) in &self.runs_by_balance_day {
+            if *b == balance && *day >= from {
+                self.again.extend(runs.iter().copied());
+            }
+        }
+    }
+
+    /// Runs already judged that name `material` are judged again at the end.
+    fn judge_again_naming(&mut self, material: &EntryHash) {
+        let Ok(naming) = self.naming(material) else {
+            return;
+        };
+        for e in naming {
+            if matches!(e.body, LabBody::Run(_)) && !self.owner.contains_key(&e.hash) {
+                self.again.insert(e.hash);
+            }
+        }
+    }
+
+    /// `BAL-04` and `TIM-01` of every routine check, corrections applied, each judged by the
+    /// policy adopted most recently before it; returns the checks that failed.
+    fn judge_checks(&mut self) -> Vec<FailedCheck> {
+        let mut failed = Vec::new();
+        for (balance, records) in &self.balances {
+            if records.checks.is_empty() {
+                continue;
+            }
+            let mut entries = self.adoptions.clone();
+            entries.extend(records.entries.iter().cloned());
+            entries.extend(records.checks.iter().cloned());
+            let catalog = Catalog::from_entries(entries);
+            let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
+            let mut findings = Vec::new();
+            rules::balances::check(&evidence, &mut findings);
+            rules::timeliness::check(&evidence, &mut findings);
+            let failing: HashSet<EntryHash> = findings
+                .iter()
+                .filter(|f| f.code == Code::BalanceCheckFailed)
+                .flat_map(|f| f.entries.iter().map(|e| e.hash))
+                .collect();
+            let mut verdicts: Vec<(Timestamp, u64, EntryHash)> = catalog
+                .of_kind("lab.balance-check")
+                .filter_map(|e| match catalog.current_of(e).as_ref() {
+                    LabBody::BalanceCheck(c) => Some((c.observed_at, e.seq, e.hash)),
+                    _ => None,
+                })
+                .collect();
+            verdicts.sort();
+            for (i, (at, seq, hash)) in verdicts.iter().enumerate() {
+                if !failing.contains(hash) {
+                    continue;
+                }
+                let (since, since_seq) = verdicts[..i]
+                    .iter()
+                    .rev()
+                    .find(|(_, _, h)| !failing.contains(h))
+                    .map_or((Timestamp(i64::MIN), 0), |(t, s, _)| (*t, *s));
+                failed.push(FailedCheck {
+                    balance: *balance,
+                    check: EntryRef {
+                        seq: *seq,
+                        hash: *hash,
+                    },
+                    at: *at,
+                    since,
+                    since_seq,
+                });
+            }
+            self.cross_run
+                .extend(findings.into_iter().filter(|f| f.run.is_none()));
+        }
+        failed
     }
 
     /// Reads one entry back by hash and decodes it.
@@ -696,9 +792,7 @@ impl Stream {
             if let Some(records) = self.balances.get(balance) {
                 all.extend(records.entries.iter().cloned());
                 for day in used {
-                    if let Some(checks) = records.checks_by_day.get(day) {
-                        all.extend(checks.iter().cloned());
-                    }
+                    all.extend(records.checks_on(*day));
                 }
             } else if let Some(found) = self.load(balance)? {
                 all.extend(self.load_with_corrections(found)?);
@@ -770,8 +864,14 @@ impl Stream {
             }
         }
         for (at, w) in weighings {
+            let key = (w.balance, rules::day_of(w.first_at));
+            let runs = self.runs_by_balance_day.entry(key).or_default();
+            if !runs.contains(&run) {
+                runs.push(run);
+            }
             self.remember_fingerprint(run_seq, at, &w);
         }
+        self.forget_old_days();
         if let (Some(findings), Some(summary)) = (judged, summary) {
             self.scope_found = true;
             self.judged.insert(run_seq, (findings, summary));
@@ -785,6 +885,20 @@ impl Stream {
             }
         }
         Ok(())
+    }
+
+    /// Keeps `runs_by_balance_day` to the most recent days: a check or calibration recorded
+    /// more than that after the weighings it concerns does not make their runs judged again.
+    fn forget_old_days(&mut self) {
+        const DAYS_KEPT: u64 = 62;
+        let Some(newest) = self.runs_by_balance_day.keys().map(|(_, d)| *d).max() else {
+            return;
+        };
+        let Some(oldest_kept) = newest.checked_sub_days(chrono::Days::new(DAYS_KEPT)) else {
+            return;
+        };
+        self.runs_by_balance_day
+            .retain(|(_, day), _| *day >= oldest_kept);
     }
 
     /// Remembers a weighing's readings; a match from another run is a `PAT-02` candidate.
@@ -846,7 +960,8 @@ impl Stream {
             let entries = self.load_run(&run)?;
             self.judge_run(run, entries)?;
         }
-        self.failed_check_impact()?;
+        let failed = self.judge_checks();
+        self.failed_check_impact(failed)?;
         self.retests()?;
         self.reused_readings()?;
         let mut findings = std::mem::take(&mut self.cross_run);
@@ -911,8 +1026,7 @@ impl Stream {
     /// `BAL-05`: every run weighed on a balance after its last passing check and before a
     /// check that failed. Weighings are looked for among the entries recorded within a window
     /// of those two checks.
-    fn failed_check_impact(&mut self) -> Result<(), LedgerError> {
-        let failed = std::mem::take(&mut self.failed_checks);
+    fn failed_check_impact(&mut self, failed: Vec<FailedCheck>) -> Result<(), LedgerError> {
         for f in failed {
             let low = f.since_seq.saturating_sub(self.options.window);
             let high = f.check.seq + self.options.window;
@@ -970,7 +1084,7 @@ impl Stream {
                     )
                     .about_run(Some(&id), sample.as_deref())
                     .involving(involved)
-                    .involving([entry_ref(&f.check)]),
+                    .involving([f.check]),
                 );
             }
         }

@@ -11,8 +11,10 @@
 mod support;
 
 use assize_ledger::store::{OpenMode, Store};
+use assize_ledger::Ledger;
 use assize_ledger::{codec, Draft, Entry, EntryHash, Record, ReplayOptions, Role, Timestamp};
 use assize_verify::catalog::Catalog;
+use assize_verify::correction::correction_draft;
 use assize_verify::findings::{Finding, RULES};
 use assize_verify::periodic;
 use assize_verify::records::{DocumentKind, Meaning, Run, RunKind, Sample, Weighing};
@@ -20,6 +22,7 @@ use assize_verify::rounding::Reported;
 use assize_verify::rules::Evidence;
 use assize_verify::validate::{validate, Scope};
 use rust_decimal::Decimal;
+use std::rc::Rc;
 use support::*;
 
 /// Codes with the test that makes each fire, one `CODE test_name` a line.
@@ -683,6 +686,20 @@ fn bal_04_silent_for_a_check_exactly_at_tolerance() {
 }
 
 #[test]
+fn bal_01_silent_for_a_calibration_certificate_entered_after_the_runs() {
+    // The certificate (calibration performed months before) is entered only after the runs
+    // were signed: the balance was calibrated when used, and its certificate's sensitivity
+    // uncertainty is what the budgets use. The streaming validation judged the runs before
+    // the certificate arrived and must judge them again.
+    let mut plan = Plan::clean();
+    let entered = plus(plan.step("approval").at, 600);
+    plan.move_after("calibration", "approval")
+        .record_at("calibration", entered);
+    let (built, _) = expect_codes(&plan, &[]);
+    agree_at_every_window(&built);
+}
+
+#[test]
 fn bal_05_balance_failing_its_check_after_the_assay() {
     let mut plan = Plan::clean();
     let observed = at(plan.knobs.assay_day, "15:00:00");
@@ -693,6 +710,7 @@ fn bal_05_balance_failing_its_check_after_the_assay() {
         "200.4000 g",
     ));
     let (built, findings) = expect_codes(&plan, &["BAL-04", "BAL-05"]);
+    agree_at_every_window(&built);
     let affected = of_code(&findings, "BAL-05");
     assert_eq!(affected.len(), 1);
     assert_eq!(affected[0].run.as_deref(), Some(ASSAY));
@@ -813,6 +831,40 @@ fn mat_01_reference_lot_expired_before_the_standardization() {
     plan.set("reference-lot", "valid_until", "2026-11-22");
     let (_, findings) = expect_codes(&plan, &["MAT-01"]);
     assert_eq!(findings[0].run.as_deref(), Some(STANDARDIZATION));
+}
+
+#[test]
+fn mat_01_silent_once_a_correction_with_a_reason_extends_the_lot_after_the_runs() {
+    // The lot was entered with a wrong date and corrected, with a reason, after the runs and
+    // their sign-offs. Every run is then judged by the corrected lot: the streaming validation
+    // must judge the runs again when the correction arrives (validation() checks it with
+    // windows that judged them before).
+    let mut plan = Plan::clean();
+    plan.set("reference-lot", "valid_until", "2026-11-22");
+    let time = plus(plan.step("approval").at, 600);
+    plan.steps.push(drafted(
+        "lot-correction",
+        time,
+        Who::Analyst,
+        Rc::new(|_: &Ledger, catalog: &Catalog, author: &str| {
+            let lot = catalog
+                .of_kind("lab.reference-lot")
+                .next()
+                .expect("the lot")
+                .hash;
+            let changes = [("valid-until".to_string(), "2027-06-30".to_string())];
+            correction_draft(
+                catalog,
+                lot,
+                &changes,
+                "certificate date mis-keyed; certificate says 2027-06-30",
+                author,
+            )
+            .expect("correction accepted")
+        }),
+    ));
+    let (built, _) = expect_codes(&plan, &[]);
+    agree_at_every_window(&built);
 }
 
 #[test]
@@ -1064,6 +1116,24 @@ fn ord_03_routine_check_recorded_after_the_first_weighing() {
     assert_eq!(findings.len(), 1);
     assert!(involves(&findings[0], built.seq("std-1-portion")));
     assert!(involves(&findings[0], built.seq("check-std-day")));
+}
+
+#[test]
+fn ord_03_and_tim_01_for_a_routine_check_entered_after_the_runs_were_signed() {
+    // The assay day's check (observed 07:52) is entered only after the approval: every
+    // weighing of that day relied on a check not yet recorded. The streaming validation
+    // judged the assay before the check arrived and must judge it again.
+    let mut plan = Plan::clean();
+    let entered = plus(plan.step("approval").at, 600);
+    plan.move_after("check-assay-day", "approval")
+        .record_at("check-assay-day", entered);
+    let (built, findings) = expect_codes(&plan, &["ORD-03", "TIM-01"]);
+    agree_at_every_window(&built);
+    let late_checks = of_code(&findings, "ORD-03");
+    assert_eq!(late_checks.len(), 6, "{}", listing(&findings));
+    assert!(late_checks
+        .iter()
+        .all(|f| involves(f, built.seq("check-assay-day"))));
 }
 
 #[test]

@@ -1119,9 +1119,10 @@ fn record_inputs(
 }
 
 /// Validates the whole ledger, and checks that every way of validating agrees: the streaming
-/// validation with its default window, with windows so small that most of what a run holds
-/// arrives after it was first judged (so it is judged again from the indexes), and the
-/// validation over a catalog of the whole ledger held in memory.
+/// validation with its default window, with windows so small that some of what a run depends
+/// on (its own entries, a later check, calibration or correction) arrives after it was first
+/// judged (so it is judged again from the indexes), and the validation over a catalog of the
+/// whole ledger held in memory.
 pub fn validation(built: &Built) -> Validation {
     let options = ReplayOptions::default();
     let streamed =
@@ -1135,7 +1136,7 @@ pub fn validation(built: &Built) -> Validation {
         "in memory and streaming differ"
     );
     assert_eq!(in_memory.runs_checked, streamed.runs_checked);
-    for window in [1, 4] {
+    for window in [1, 3, 8, 21, 55] {
         let narrow = StreamOptions {
             window,
             ..StreamOptions::default()
@@ -1151,6 +1152,33 @@ pub fn validation(built: &Built) -> Validation {
         assert_eq!(comparable(&late), expected, "window {window} differs");
     }
     streamed
+}
+
+/// Checks that the streaming validation agrees with the in-memory one at every window from
+/// one entry to the whole ledger: each run is then judged at every possible point of the walk,
+/// before and after each record that arrives late for it.
+pub fn agree_at_every_window(built: &Built) {
+    let options = ReplayOptions::default();
+    let expected = comparable(
+        &validate_in_memory(&built.ledger, &Scope::Ledger, &options, &mut |_| {})
+            .expect("in-memory validation runs"),
+    );
+    let head = built.ledger.head().expect("head").map_or(0, |h| h.seq);
+    for window in 1..=head {
+        let narrow = StreamOptions {
+            window,
+            ..StreamOptions::default()
+        };
+        let streamed = validate_streaming(
+            &built.ledger,
+            &Scope::Ledger,
+            &options,
+            &narrow,
+            &mut |_| {},
+        )
+        .expect("streaming validation runs");
+        assert_eq!(comparable(&streamed), expected, "window {window} differs");
+    }
 }
 
 /// What two validations must agree on: every finding's code, run, message and entries.
