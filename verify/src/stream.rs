@@ -738,19 +738,21 @@ impl Stream {
 
     /// Judges one run from its entries and what they depend on.
     fn judge_run(&mut self, run: EntryHash, entries: Vec<CatalogEntry>) -> Result<(), LedgerError> {
-        let own = Catalog::from_entries(entries.clone());
-        let Some(LabBody::Run(body)) = own.current(&run) else {
+        let Some(LabBody::Run(body)) = current_body(&entries, &run) else {
             return Ok(());
         };
         let is_standardization = body.kind == RunKind::Standardization;
+        let own_entries = if is_standardization {
+            entries.clone()
+        } else {
+            Vec::new()
+        };
         let mut all = entries;
         all.extend(self.adoptions.iter().cloned());
         let mut standardization = None;
         if let Some(std_hash) = body.standardization {
             let std_entries = self.standardization_entries(&std_hash)?;
-            if let Some(LabBody::Run(std_body)) =
-                Catalog::from_entries(std_entries.iter().cloned()).current(&std_hash)
-            {
+            if let Some(LabBody::Run(std_body)) = current_body(&std_entries, &std_hash) {
                 for hash in [
                     Some(std_body.titrant),
                     std_body.reference_lot,
@@ -772,17 +774,20 @@ impl Stream {
             all.extend(self.material(&hash)?);
         }
         // Balances weighed on, with their calibrations and the checks on the days of use.
+        // (Weighings as recorded and as corrected: either may name the balance and day.)
         let mut days: BTreeMap<EntryHash, BTreeSet<NaiveDate>> = BTreeMap::new();
         for e in &all {
-            if let LabBody::Weighing(w) = &e.body {
-                days.entry(w.balance)
-                    .or_default()
-                    .insert(rules::day_of(w.first_at));
-            }
-        }
-        let mini_for_weighings = Catalog::from_entries(all.iter().cloned());
-        for e in mini_for_weighings.of_kind(Weighing::KIND) {
-            if let LabBody::Weighing(w) = mini_for_weighings.current_of(e).as_ref() {
+            let weighing = match &e.body {
+                LabBody::Weighing(w) => Some(std::borrow::Cow::Borrowed(w)),
+                LabBody::Correction(c) if c.kind == Weighing::KIND => {
+                    match LabBody::decode(&c.kind, &c.replacement) {
+                        Ok(Some(LabBody::Weighing(w))) => Some(std::borrow::Cow::Owned(w)),
+                        _ => None,
+                    }
+                }
+                _ => None,
+            };
+            if let Some(w) = weighing {
                 days.entry(w.balance)
                     .or_default()
                     .insert(rules::day_of(w.first_at));
@@ -877,7 +882,7 @@ impl Stream {
             self.judged.insert(run_seq, (findings, summary));
         }
         if is_standardization {
-            let kept = Arc::new(catalog_entries_of(&own));
+            let kept = Arc::new(own_entries);
             self.standardizations.retain(|(h, _)| *h != run);
             self.standardizations.push_back((run, kept));
             while self.standardizations.len() > STANDARDIZATIONS_KEPT {
@@ -1190,7 +1195,17 @@ impl Stream {
     }
 }
 
-/// Every entry of a catalog, in sequence order.
-fn catalog_entries_of(catalog: &Catalog) -> Vec<CatalogEntry> {
-    catalog.entries().to_vec()
+/// The body in force for `hash` among `entries` (its latest signed correction applied).
+fn current_body(entries: &[CatalogEntry], hash: &EntryHash) -> Option<LabBody> {
+    let original = entries.iter().find(|e| e.hash == *hash)?;
+    let corrected = entries
+        .iter()
+        .filter(|e| e.signed && e.seq > original.seq)
+        .filter_map(|e| match &e.body {
+            LabBody::Correction(c) if c.supersedes == *hash => Some((e.seq, c)),
+            _ => None,
+        })
+        .max_by_key(|(seq, _)| *seq)
+        .and_then(|(_, c)| LabBody::decode(&c.kind, &c.replacement).ok().flatten());
+    Some(corrected.unwrap_or_else(|| original.body.clone()))
 }
