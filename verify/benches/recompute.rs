@@ -10,7 +10,8 @@
 //!    three replicates of a portion weighing, a titrant weighing and a replicate entry, plus the
 //!    balances (recalibrated yearly), reference lots, titrants and samples they need. Records are
 //!    entered as `intake::Input`s turned into drafts by `intake::draft` against a `Catalog` that
-//!    grows with the ledger, one `Ledger::append_batch` transaction per titrant;
+//!    grows with the ledger, one `Ledger::append_batch` transaction per titrant (the classic
+//!    style of `support/lab_ledger.rs`, shared with the validation benchmark);
 //! 2. times, over several rounds: (a) the integrity replay alone; (b) the same replay building
 //!    the lab catalog from the entries it reads (`Catalog::from_replay`), (a) and (b) swapping
 //!    order every round; (c) the recompute of every run from that catalog on all cores
@@ -25,92 +26,31 @@
 //! progress on stderr, and asserts no timing: the replays must be intact and every run must
 //! recompute (the first runs also exactly as `recompute_run_entry` gives them), nothing more.
 
-use assize_ledger::records::Enrolment;
+#[path = "support/lab_ledger.rs"]
+mod lab_ledger;
+#[path = "support/machine.rs"]
+mod machine;
+
 use assize_ledger::Record;
-use assize_ledger::{
-    Entry, FixedClock, IntegrityReport, Ledger, LedgerError, OpenMode, ReplayOptions, Role, Signer,
-    Timestamp,
-};
+use assize_ledger::{FixedClock, IntegrityReport, Ledger, OpenMode, ReplayOptions, Timestamp};
 use assize_verify::assemble::{self, Recomputer};
 use assize_verify::catalog::Catalog;
-use assize_verify::intake::{draft, Input};
-use assize_verify::records::{DocumentKind, Portion, Run, RunKind, WeighingMode};
+use assize_verify::records::Run;
+use lab_ledger::{
+    build_ledger, BenchResult, LedgerSpec, ASSAYS_PER_TITRANT, FIRST_DAY_MICROS, REPLICATES,
+    RUNS_PER_TITRANT,
+};
+use machine::{file_mib, load_average, print_machine, Cost};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
-use std::time::{Duration, Instant};
-
-type BenchResult<T> = Result<T, Box<dyn std::error::Error>>;
+use std::time::Duration;
 
 /// Runs in the ledger when `ASSIZE_BENCH_RUNS` is not set.
 const DEFAULT_RUNS: u64 = 10_000;
-/// Assays that rely on each standardization (so runs come in groups of this plus one).
-const ASSAYS_PER_TITRANT: u64 = 3;
-/// Runs per titrant: its standardization and its assays.
-const RUNS_PER_TITRANT: u64 = ASSAYS_PER_TITRANT + 1;
-/// Determinations per run (the method asks for three).
-const REPLICATES: u32 = 3;
 /// Each figure is timed this many times, alternating; the best of each counts.
 const ROUNDS: usize = 7;
 /// Target: what recomputing every run adds, over the integrity replay alone.
 const TARGET_RATIO: f64 = 0.10;
-
-/// Invented lab name for the opening entry.
-const LAB_NAME: &str = "Example Peroxide Testing Lab";
-/// The shipped method and policy, adopted once at the start.
-const METHOD_TEXT: &str = include_str!("../../policies/permanganate-peroxide.toml");
-const POLICY_TEXT: &str = include_str!("../../policies/lab-policy.toml");
-/// Ids inside those documents, by which runs name them.
-const METHOD_ID: &str = "QAL-M-014";
-const POLICY_ID: &str = "QAL-POL-001";
-
-/// A person of the fixture; the first is the founder (QA), who enrols the others.
-struct Person {
-    id: &'static str,
-    name: &'static str,
-    role: Role,
-    secret_byte: u8,
-}
-
-const PERSONS: [Person; 3] = [
-    Person {
-        id: "qa-1",
-        name: "QA Officer One",
-        role: Role::Qa,
-        secret_byte: 0x51,
-    },
-    Person {
-        id: "analyst-1",
-        name: "Analyst One",
-        role: Role::Analyst,
-        secret_byte: 0x62,
-    },
-    Person {
-        id: "analyst-2",
-        name: "Analyst Two",
-        role: Role::Analyst,
-        secret_byte: 0x73,
-    },
-];
-
-/// Balances: portions are weighed on the first, titrant bottles on the second. The first has a
-/// calibration certificate stating its sensitivity uncertainty; the second relies on the policy.
-const PORTION_BALANCE: &str = "B1-AX";
-const TITRANT_BALANCE: &str = "B2-AX";
-/// Sodium oxalate lots; titrant number `t` is standardized against lot `t % LOTS`.
-const LOTS: u64 = 4;
-/// Standardizations started per day (each followed by its assays).
-const TITRANTS_PER_DAY: u64 = 2;
-/// Days between balance calibrations.
-const CALIBRATION_DAYS: u64 = 365;
-/// Monday 2026-01-05 07:00:00 UTC, the first working day of the invented record.
-const FIRST_DAY_MICROS: i64 = 1_767_596_400_000_000;
-const DAY_MICROS: i64 = 86_400_000_000;
-const MINUTE_MICROS: i64 = 60_000_000;
-
-/// Values used only to make plausible readings (the benchmark never checks them).
-const OXALATE_MOLAR_MASS: f64 = 133.998;
-const PEROXIDE_MOLAR_MASS: f64 = 34.0147;
-const LOT_PURITY: f64 = 0.99965;
 
 /// What one run does, from the environment.
 struct Plan {
@@ -142,12 +82,20 @@ impl Plan {
         })
     }
 
+    /// The ledger to build: the classic style, as this benchmark has always measured it.
+    fn spec(&self) -> LedgerSpec {
+        LedgerSpec {
+            titrants: self.titrants,
+            realistic: false,
+        }
+    }
+
     fn runs(&self) -> u64 {
-        self.titrants * RUNS_PER_TITRANT
+        self.spec().runs()
     }
 
     fn weighings(&self) -> u64 {
-        self.runs() * u64::from(REPLICATES) * 2
+        self.spec().weighings()
     }
 }
 
@@ -160,7 +108,7 @@ fn main() -> BenchResult<()> {
         .tempdir_in(&plan.base_dir)
         .expect("a temporary directory for the benchmark ledger");
     let path = dir.path().join("runs.assize");
-    let built = build_ledger(&plan, &path)?;
+    let built = build_ledger(&plan.spec(), &path)?;
     println!(
         "ledger: {} entries, {} runs ({} standardizations, {} assays, {} replicates each), {} weighings; built in {:.1} s",
         built.entries,
@@ -179,541 +127,7 @@ fn main() -> BenchResult<()> {
 }
 
 // ---------------------------------------------------------------------------------------------
-// Machine
-
-fn print_machine() {
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
-    let model = std::fs::read_to_string("/proc/cpuinfo")
-        .ok()
-        .and_then(|text| {
-            text.lines()
-                .find(|l| l.starts_with("model name"))
-                .and_then(|l| l.split_once(':'))
-                .map(|(_, v)| v.trim().to_string())
-        })
-        .unwrap_or_else(|| "unknown".into());
-    let kernel = std::fs::read_to_string("/proc/sys/kernel/osrelease")
-        .map(|k| k.trim().to_string())
-        .unwrap_or_else(|_| "unknown".into());
-    println!("machine: nproc {cores}, {model}, kernel {kernel}");
-    println!("load average at start: {}", load_average());
-}
-
-/// The 1-, 5- and 15-minute load averages, to show whether the machine was busy.
-fn load_average() -> String {
-    std::fs::read_to_string("/proc/loadavg")
-        .map(|text| {
-            text.split_whitespace()
-                .take(3)
-                .collect::<Vec<_>>()
-                .join(" ")
-        })
-        .unwrap_or_else(|_| "unknown".into())
-}
-
-fn file_mib(path: &Path) -> f64 {
-    std::fs::metadata(path).map_or(0.0, |m| m.len() as f64 / (1024.0 * 1024.0))
-}
-
-// ---------------------------------------------------------------------------------------------
-// Deterministic inputs
-
-/// splitmix64: a fixed, well-mixed sequence from a seed.
-struct Generator {
-    state: u64,
-}
-
-impl Generator {
-    fn new(seed: u64) -> Generator {
-        Generator { state: seed }
-    }
-
-    fn next(&mut self) -> u64 {
-        self.state = self.state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut x = self.state;
-        x = (x ^ (x >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        x = (x ^ (x >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        x ^ (x >> 31)
-    }
-
-    /// A whole number in `0..n`.
-    fn below(&mut self, n: u64) -> u64 {
-        self.next() % n
-    }
-
-    /// A whole number in `-spread..=spread`.
-    fn around_zero(&mut self, spread: u64) -> i64 {
-        self.below(2 * spread + 1) as i64 - spread as i64
-    }
-}
-
-/// A balance display of `tenth_mg` tenths of a milligram, e.g. `"18.4127 g"`.
-fn grams(tenth_mg: u64) -> String {
-    format!("{}.{:04} g", tenth_mg / 10_000, tenth_mg % 10_000)
-}
-
-/// Grams to whole tenths of a milligram, as a 0.1 mg balance would show them.
-fn to_tenth_mg(grams: f64) -> u64 {
-    (grams * 10_000.0).round() as u64
-}
-
-fn time_text(at: Timestamp) -> String {
-    at.to_string()
-}
-
-fn fixture_signers() -> Vec<Signer> {
-    PERSONS
-        .iter()
-        .map(|p| Signer::from_secret(p.id, &[p.secret_byte; 32]))
-        .collect()
-}
-
-// ---------------------------------------------------------------------------------------------
-// 1. Building the ledger
-
-struct Built {
-    entries: u64,
-    time: Duration,
-}
-
-/// The ledger being written and the lab catalog that resolves ids for the next drafts.
-struct Writer {
-    ledger: Ledger,
-    catalog: Catalog,
-    entries: u64,
-}
-
-impl Writer {
-    /// Appends `inputs` signed by `signer` in one transaction, resolving ids against the
-    /// catalog, which takes in each entry as soon as it is appended.
-    fn record(&mut self, signer: &Signer, inputs: &[Input]) -> BenchResult<()> {
-        let author = signer.person().to_string();
-        let catalog = &mut self.catalog;
-        let appended = self
-            .ledger
-            .append_batch(inputs.len(), Some(signer), |i, earlier| {
-                if let Some(previous) = earlier.last() {
-                    catalog.add(previous);
-                }
-                draft(&inputs[i], catalog, &author).map_err(|reason| LedgerError::BadInput {
-                    what: format!("bench record {} ({})", i + 1, inputs[i].kind()),
-                    reason,
-                })
-            })?;
-        if let Some(last) = appended.last() {
-            self.catalog.add(last);
-        }
-        self.entries += appended.len() as u64;
-        Ok(())
-    }
-
-    fn append_signed<R: Record>(&mut self, record: &R, signer: &Signer) -> BenchResult<Entry> {
-        let entry = self.ledger.append_record(record, signer)?;
-        self.catalog.add(&entry);
-        self.entries += 1;
-        Ok(entry)
-    }
-}
-
-fn build_ledger(plan: &Plan, path: &Path) -> BenchResult<Built> {
-    eprintln!(
-        "building a ledger of {} runs in {} ...",
-        plan.runs(),
-        path.display()
-    );
-    let started = Instant::now();
-    let signers = fixture_signers();
-    let clock = Arc::new(FixedClock::new(Timestamp(FIRST_DAY_MICROS), 1_000_000));
-    let (ledger, opening) = Ledger::create(
-        path,
-        LAB_NAME,
-        PERSONS[0].name,
-        &signers[0],
-        assize_verify::kind_rules(),
-        clock,
-    )?;
-    let mut writer = Writer {
-        ledger,
-        catalog: Catalog::default(),
-        entries: 0,
-    };
-    writer.catalog.add(&opening);
-    writer.entries += 1;
-    for (person, signer) in PERSONS.iter().zip(&signers).skip(1) {
-        let enrolment = Enrolment {
-            person: person.id.into(),
-            name: person.name.into(),
-            role: person.role,
-            public_key: signer.public_key(),
-        };
-        writer.append_signed(&enrolment, &signers[0])?;
-    }
-    writer.record(&signers[0], &adoptions())?;
-    writer.record(&signers[1], &equipment_and_lots())?;
-    let mut generator = Generator::new(0x00A5_5152_E000_0001);
-    for titrant in 0..plan.titrants {
-        let analyst = &signers[1 + (titrant % 2) as usize];
-        let inputs = titrant_week(titrant, &mut generator);
-        writer.record(analyst, &inputs)?;
-        if (titrant + 1) % 250 == 0 {
-            eprintln!("  {} of {} titrants", titrant + 1, plan.titrants);
-        }
-    }
-    Ok(Built {
-        entries: writer.entries,
-        time: started.elapsed(),
-    })
-}
-
-fn adoptions() -> Vec<Input> {
-    [
-        (DocumentKind::Method, METHOD_TEXT),
-        (DocumentKind::Policy, POLICY_TEXT),
-    ]
-    .into_iter()
-    .map(|(document, text)| Input::Adopt {
-        document,
-        file: None,
-        text: Some(text.to_string()),
-    })
-    .collect()
-}
-
-fn balance_input(id: &str, description: &str) -> Input {
-    Input::Balance {
-        id: id.into(),
-        description: description.into(),
-        readability: "0.0001 g".into(),
-        capacity: "220 g".into(),
-        minimum_weight: "0.0820 g".into(),
-    }
-}
-
-/// A yearly calibration of `balance`, the `year`-th since the start.
-fn calibration_input(balance: &str, year: u64) -> Input {
-    let performed = 2026 + year;
-    Input::Calibration {
-        balance: balance.into(),
-        certificate: format!("QCAL-{balance}-{performed}"),
-        performed_on: format!("{performed}-01-02"),
-        due_on: format!("{}-01-02", performed + 1),
-        passed: true,
-        repeatability_sd: "0.00004 g".into(),
-        // The titrant balance's certificate states no sensitivity; the policy's default applies.
-        sensitivity_relative_u: (balance == PORTION_BALANCE).then(|| "0.000005".to_string()),
-    }
-}
-
-fn lot_id(lot: u64) -> String {
-    format!("NOX-26-{:03}", lot + 1)
-}
-
-fn equipment_and_lots() -> Vec<Input> {
-    let mut inputs = vec![
-        balance_input(PORTION_BALANCE, "analytical balance, room B1, bench 2"),
-        balance_input(TITRANT_BALANCE, "analytical balance, room B2, bench 1"),
-        calibration_input(PORTION_BALANCE, 0),
-        calibration_input(TITRANT_BALANCE, 0),
-    ];
-    for lot in 0..LOTS {
-        inputs.push(Input::ReferenceLot {
-            id: lot_id(lot),
-            substance: "sodium oxalate".into(),
-            formula: "Na2C2O4".into(),
-            purity: "0.99965".into(),
-            purity_expanded_u: "0.00024".into(),
-            coverage_factor: "2".into(),
-            certificate: format!("QRM-OX-{}", 5521 + lot),
-            valid_until: "2035-06-30".into(),
-            drying: "2 h at 110 C, cooled in desiccator".into(),
-        });
-    }
-    inputs
-}
-
-/// Where the bench clock stands while a titrant's runs are entered.
-struct BenchTime {
-    at: Timestamp,
-}
-
-impl BenchTime {
-    /// Advances by `minutes` and returns the new time as text.
-    fn after(&mut self, minutes: i64) -> String {
-        self.at = Timestamp(self.at.0 + minutes * MINUTE_MICROS);
-        time_text(self.at)
-    }
-}
-
-/// One titrant's records: its yearly balance calibrations when due, the titrant, its
-/// standardization, the samples and their assays, in the order an analyst enters them.
-fn titrant_week(titrant: u64, generator: &mut Generator) -> Vec<Input> {
-    let day = titrant / TITRANTS_PER_DAY;
-    let start = FIRST_DAY_MICROS
-        + day as i64 * DAY_MICROS
-        + (titrant % TITRANTS_PER_DAY) as i64 * 240 * MINUTE_MICROS;
-    let mut clock = BenchTime {
-        at: Timestamp(start),
-    };
-    let mut inputs = Vec::new();
-    if day > 0 && day % CALIBRATION_DAYS == 0 && titrant % TITRANTS_PER_DAY == 0 {
-        let year = day / CALIBRATION_DAYS;
-        inputs.push(calibration_input(PORTION_BALANCE, year));
-        inputs.push(calibration_input(TITRANT_BALANCE, year));
-    }
-    let titrant_id = format!("KMN-{:05}", titrant + 1);
-    let date = clock.at.to_datetime().date_naive();
-    inputs.push(Input::Titrant {
-        id: titrant_id.clone(),
-        formula: "KMnO4".into(),
-        nominal_concentration: "0.02".into(),
-        prepared_on: date.to_string(),
-        valid_until: (date + chrono::Days::new(90)).to_string(),
-    });
-    // The titrant's true strength, within ±2 % of nominal.
-    let concentration = 0.02 * (1.0 + generator.around_zero(200) as f64 / 10_000.0);
-    let standardization = format!("STD-{titrant_id}");
-    inputs.extend(standardization_run(
-        &standardization,
-        &titrant_id,
-        &lot_id(titrant % LOTS),
-        concentration,
-        &mut clock,
-        generator,
-    ));
-    for assay in 0..ASSAYS_PER_TITRANT {
-        let sample = format!("HP-{:05}-{}", titrant + 1, assay + 1);
-        inputs.push(Input::Sample {
-            id: sample.clone(),
-            description: format!(
-                "hydrogen peroxide about 30 %, drum {} of lot PX-{:05}",
-                assay + 1,
-                titrant + 1
-            ),
-            received_at: clock.after(5),
-        });
-        inputs.extend(assay_run(
-            &format!("AS-{sample}"),
-            &titrant_id,
-            &sample,
-            &standardization,
-            concentration,
-            &mut clock,
-            generator,
-        ));
-    }
-    inputs
-}
-
-/// A weighing by difference: the vessel before and after the portion left it.
-#[allow(clippy::too_many_arguments)]
-fn weighing(
-    run: &str,
-    replicate: u32,
-    portion: Portion,
-    balance: &str,
-    before_tenth_mg: u64,
-    net_tenth_mg: u64,
-    clock: &mut BenchTime,
-    minutes: i64,
-) -> Input {
-    Input::Weighing {
-        run: run.into(),
-        replicate,
-        portion,
-        balance: balance.into(),
-        mode: WeighingMode::ByDifference,
-        first: grams(before_tenth_mg),
-        first_at: clock.after(2),
-        second: grams(before_tenth_mg - net_tenth_mg),
-        second_at: clock.after(minutes),
-        captured: false,
-        unstable: false,
-    }
-}
-
-fn run_input(
-    id: &str,
-    kind: RunKind,
-    titrant: &str,
-    lot: Option<&str>,
-    sample: Option<&str>,
-    standardization: Option<&str>,
-    clock: &mut BenchTime,
-) -> Input {
-    Input::Run {
-        id: id.into(),
-        run_kind: kind,
-        method: METHOD_ID.into(),
-        policy: POLICY_ID.into(),
-        titrant: titrant.into(),
-        reference_lot: lot.map(str::to_string),
-        sample: sample.map(str::to_string),
-        standardization: standardization.map(str::to_string),
-        started_at: clock.after(5),
-    }
-}
-
-/// Three titrations of about 0.25 g sodium oxalate with the titrant weighed by difference.
-fn standardization_run(
-    run: &str,
-    titrant: &str,
-    lot: &str,
-    concentration: f64,
-    clock: &mut BenchTime,
-    generator: &mut Generator,
-) -> Vec<Input> {
-    let mut inputs = vec![run_input(
-        run,
-        RunKind::Standardization,
-        titrant,
-        Some(lot),
-        None,
-        None,
-        clock,
-    )];
-    let mut bottle = 180_000 + generator.below(10_000);
-    for number in 1..=REPLICATES {
-        let portion = 2_400 + generator.below(200);
-        let moles_titrant = portion as f64 / 10_000.0 * LOT_PURITY / OXALATE_MOLAR_MASS * 0.4;
-        let titrant_mass = to_tenth_mg(moles_titrant / concentration * 1000.0)
-            .saturating_add_signed(generator.around_zero(15));
-        let dropping_bottle = 1_100_000 + generator.below(50_000);
-        inputs.push(weighing(
-            run,
-            number,
-            Portion::PrimaryStandard,
-            PORTION_BALANCE,
-            bottle,
-            portion,
-            clock,
-            1,
-        ));
-        inputs.push(weighing(
-            run,
-            number,
-            Portion::Titrant,
-            TITRANT_BALANCE,
-            dropping_bottle,
-            titrant_mass,
-            clock,
-            12,
-        ));
-        inputs.push(Input::Replicate {
-            run: run.into(),
-            number,
-            endpoint: "faint pink persisting 30 s, titrated at about 70 C".into(),
-        });
-        bottle -= portion;
-    }
-    inputs
-}
-
-/// Three titrations of about 0.15 g of a 29–31 % peroxide sample.
-fn assay_run(
-    run: &str,
-    titrant: &str,
-    sample: &str,
-    standardization: &str,
-    concentration: f64,
-    clock: &mut BenchTime,
-    generator: &mut Generator,
-) -> Vec<Input> {
-    let mut inputs = vec![run_input(
-        run,
-        RunKind::Assay,
-        titrant,
-        None,
-        Some(sample),
-        Some(standardization),
-        clock,
-    )];
-    let content = 0.30 + generator.around_zero(100) as f64 / 10_000.0;
-    let mut vial = 98_000 + generator.below(5_000);
-    for number in 1..=REPLICATES {
-        let portion = 1_400 + generator.below(200);
-        let peroxide_moles = portion as f64 / 10_000.0 * content / PEROXIDE_MOLAR_MASS;
-        let titrant_mass = to_tenth_mg(peroxide_moles * 0.4 / concentration * 1000.0)
-            .saturating_add_signed(generator.around_zero(15));
-        let dropping_bottle = 1_100_000 + generator.below(50_000);
-        inputs.push(weighing(
-            run,
-            number,
-            Portion::Sample,
-            PORTION_BALANCE,
-            vial,
-            portion,
-            clock,
-            1,
-        ));
-        inputs.push(weighing(
-            run,
-            number,
-            Portion::Titrant,
-            TITRANT_BALANCE,
-            dropping_bottle,
-            titrant_mass,
-            clock,
-            7,
-        ));
-        inputs.push(Input::Replicate {
-            run: run.into(),
-            number,
-            endpoint: "faint pink persisting 30 s, titrated cold".into(),
-        });
-        vial -= portion;
-    }
-    inputs
-}
-
-// ---------------------------------------------------------------------------------------------
 // 2. Measuring
-
-/// Wall-clock time of one phase and the CPU time (user + system, all threads) it used.
-#[derive(Clone, Copy)]
-struct Cost {
-    wall: Duration,
-    cpu: Option<Duration>,
-}
-
-impl Cost {
-    const NONE: Cost = Cost {
-        wall: Duration::MAX,
-        cpu: None,
-    };
-
-    /// Runs `phase`, measuring its wall-clock and CPU time.
-    fn of<T>(phase: impl FnOnce() -> BenchResult<T>) -> BenchResult<(Cost, T)> {
-        let cpu_before = process_cpu();
-        let started = Instant::now();
-        let value = phase()?;
-        let wall = started.elapsed();
-        let cpu = match (cpu_before, process_cpu()) {
-            (Some(before), Some(after)) => Some(after.saturating_sub(before)),
-            _ => None,
-        };
-        Ok((Cost { wall, cpu }, value))
-    }
-
-    /// The faster of two measurements of the same phase.
-    fn best(self, other: Cost) -> Cost {
-        if other.wall < self.wall {
-            other
-        } else {
-            self
-        }
-    }
-}
-
-/// User plus system CPU time of this process so far, all threads (finished ones included),
-/// from `/proc/self/stat` in clock ticks of 10 ms (Linux `USER_HZ` = 100).
-fn process_cpu() -> Option<Duration> {
-    let stat = std::fs::read_to_string("/proc/self/stat").ok()?;
-    let after_name = &stat[stat.rfind(')')? + 1..];
-    let fields: Vec<&str> = after_name.split_whitespace().collect();
-    let user: u64 = fields.get(11)?.parse().ok()?;
-    let system: u64 = fields.get(12)?.parse().ok()?;
-    Some(Duration::from_millis((user + system) * 10))
-}
 
 /// Best costs of each phase.
 struct Figures {
