@@ -59,7 +59,7 @@ impl Default for StreamOptions {
     fn default() -> Self {
         StreamOptions {
             window: 20_000,
-            fingerprint_horizon: 262_144,
+            fingerprint_horizon: 65_536,
         }
     }
 }
@@ -178,23 +178,49 @@ struct Bucket {
 struct BalanceRecords {
     /// The balance entry and its calibrations, with corrections of any of them.
     entries: Vec<CatalogEntry>,
-    /// Routine checks, with corrections of them, in the order walked.
+    /// Recent routine checks and corrections of checks, in the order walked (older ones are
+    /// read back by index when needed).
     checks: Vec<CatalogEntry>,
-    /// Check entries by UTC day of observation (as recorded and as corrected).
+    /// Every check entry by UTC day of observation (as recorded and as corrected).
     checks_by_day: BTreeMap<NaiveDate, Vec<EntryHash>>,
+    /// Every check entry of the balance.
+    check_set: HashSet<EntryHash>,
 }
 
 impl BalanceRecords {
-    /// The checks observed on `day`, with every correction of them.
-    fn checks_on(&self, day: NaiveDate) -> Vec<CatalogEntry> {
-        let Some(hashes) = self.checks_by_day.get(&day) else {
-            return Vec::new();
-        };
-        self.checks
+    /// The balance entry, every correction, and the calibrations in force on any of `days`
+    /// (the latest performed on or before the day; a calibration that was corrected is always
+    /// included, so the choice is made on its corrected date).
+    fn in_force(&self, days: impl Iterator<Item = NaiveDate>) -> Vec<CatalogEntry> {
+        let corrected: HashSet<EntryHash> = self
+            .entries
             .iter()
-            .filter(|c| {
-                hashes.contains(&c.hash)
-                    || matches!(&c.body, LabBody::Correction(k) if hashes.contains(&k.supersedes))
+            .filter_map(|e| match &e.body {
+                LabBody::Correction(c) => Some(c.supersedes),
+                _ => None,
+            })
+            .collect();
+        let performed = |e: &CatalogEntry| match &e.body {
+            LabBody::Calibration(c) => NaiveDate::parse_from_str(&c.performed_on, "%Y-%m-%d").ok(),
+            _ => None,
+        };
+        let mut chosen: HashSet<EntryHash> = HashSet::new();
+        for day in days {
+            let latest = self
+                .entries
+                .iter()
+                .filter_map(|e| performed(e).map(|p| (p, e.seq, e.hash)))
+                .filter(|(p, _, _)| *p <= day)
+                .max();
+            if let Some((_, _, hash)) = latest {
+                chosen.insert(hash);
+            }
+        }
+        self.entries
+            .iter()
+            .filter(|e| match &e.body {
+                LabBody::Calibration(_) => chosen.contains(&e.hash) || corrected.contains(&e.hash),
+                _ => true,
             })
             .cloned()
             .collect()
@@ -252,7 +278,12 @@ struct Stream {
     fingerprints: HashMap<u64, (u64, EntryRef)>,
     fingerprint_order: VecDeque<u64>,
     reused: BTreeMap<u64, Vec<(u64, EntryRef)>>,
+    /// Findings and summary of each run judged with findings (every run judged, when the
+    /// scope is one run or sample, or while `keep_every_summary` is set).
     judged: BTreeMap<u64, (Vec<Finding>, RunSummary)>,
+    /// Runs in scope judged at least once.
+    runs_checked: usize,
+    keep_every_summary: bool,
     scope_found: bool,
     memory: Option<DocumentMemory>,
 }
@@ -281,6 +312,8 @@ impl Stream {
             fingerprint_order: VecDeque::new(),
             reused: BTreeMap::new(),
             judged: BTreeMap::new(),
+            runs_checked: 0,
+            keep_every_summary: false,
             scope_found: false,
             memory: Some(DocumentMemory::default()),
         }
@@ -302,11 +335,14 @@ impl Stream {
             for e in &bucket.entries {
                 self.owner.remove(&e.hash);
             }
-            self.judge_run(bucket.run, bucket.entries)?;
+            self.judge_run(bucket.run, bucket.entries, true)?;
         }
         if self.walked % 4096 == 0 {
             let horizon = self.walked.saturating_sub(self.options.window);
             self.materials.retain(|_, m| m.last_used >= horizon);
+            for records in self.balances.values_mut() {
+                records.checks.retain(|c| c.seq >= horizon);
+            }
         }
         Ok(())
     }
@@ -404,7 +440,7 @@ impl Stream {
             true
         } else if let Some(&balance) = self.balance_of.get(&target) {
             let records = self.balances.entry(balance).or_default();
-            let is_check = records.checks.iter().any(|c| c.hash == target);
+            let is_check = records.check_set.contains(&target);
             if is_check {
                 records.checks.push(entry.clone());
                 let mut days: Vec<NaiveDate> = records
@@ -509,6 +545,7 @@ impl Stream {
             .entry(day)
             .or_default()
             .push(entry.hash);
+        records.check_set.insert(entry.hash);
         records.checks.push(entry);
         self.judge_again_on(balance, day);
         Ok(())
@@ -544,59 +581,122 @@ impl Stream {
         }
     }
 
-    /// `BAL-04` and `TIM-01` of every routine check, corrections applied, each judged by the
-    /// policy adopted most recently before it; returns the checks that failed.
-    fn judge_checks(&mut self) -> Vec<FailedCheck> {
-        let mut failed = Vec::new();
-        for (balance, records) in &self.balances {
-            if records.checks.is_empty() {
-                continue;
-            }
-            let mut entries = self.adoptions.clone();
-            entries.extend(records.entries.iter().cloned());
-            entries.extend(records.checks.iter().cloned());
-            let catalog = Catalog::from_entries(entries);
-            let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
-            let mut findings = Vec::new();
-            rules::balances::check(&evidence, &mut findings);
-            rules::timeliness::check(&evidence, &mut findings);
-            let failing: HashSet<EntryHash> = findings
-                .iter()
-                .filter(|f| f.code == Code::BalanceCheckFailed)
-                .flat_map(|f| f.entries.iter().map(|e| e.hash))
-                .collect();
-            let mut verdicts: Vec<(Timestamp, u64, EntryHash)> = catalog
-                .of_kind("lab.balance-check")
-                .filter_map(|e| match catalog.current_of(e).as_ref() {
-                    LabBody::BalanceCheck(c) => Some((c.observed_at, e.seq, e.hash)),
-                    _ => None,
-                })
-                .collect();
-            verdicts.sort();
-            for (i, (at, seq, hash)) in verdicts.iter().enumerate() {
-                if !failing.contains(hash) {
-                    continue;
-                }
-                let (since, since_seq) = verdicts[..i]
-                    .iter()
-                    .rev()
-                    .find(|(_, _, h)| !failing.contains(h))
-                    .map_or((Timestamp(i64::MIN), 0), |(t, s, _)| (*t, *s));
-                failed.push(FailedCheck {
-                    balance: *balance,
-                    check: EntryRef {
-                        seq: *seq,
-                        hash: *hash,
-                    },
-                    at: *at,
-                    since,
-                    since_seq,
-                });
-            }
-            self.cross_run
-                .extend(findings.into_iter().filter(|f| f.run.is_none()));
+    /// A balance's checks observed on `day`, with every correction of them: from memory when
+    /// recent, else read back by index.
+    fn checks_on(
+        &self,
+        balance: &EntryHash,
+        day: NaiveDate,
+    ) -> Result<Vec<CatalogEntry>, LedgerError> {
+        let Some(records) = self.balances.get(balance) else {
+            return Ok(Vec::new());
+        };
+        let Some(hashes) = records.checks_by_day.get(&day) else {
+            return Ok(Vec::new());
+        };
+        let mut found = Vec::new();
+        for hash in hashes {
+            found.extend(self.check_with_corrections(records, hash)?);
         }
-        failed
+        Ok(found)
+    }
+
+    /// One check and its corrections.
+    fn check_with_corrections(
+        &self,
+        records: &BalanceRecords,
+        hash: &EntryHash,
+    ) -> Result<Vec<CatalogEntry>, LedgerError> {
+        let recent: Vec<CatalogEntry> = records
+            .checks
+            .iter()
+            .filter(|c| {
+                c.hash == *hash
+                    || matches!(&c.body, LabBody::Correction(k) if k.supersedes == *hash)
+            })
+            .cloned()
+            .collect();
+        if recent.iter().any(|c| c.hash == *hash) {
+            return Ok(recent);
+        }
+        match self.load(hash)? {
+            Some(found) => self.load_with_corrections(found),
+            None => Ok(Vec::new()),
+        }
+    }
+
+    /// `BAL-04` and `TIM-01` of every routine check, corrections applied, each judged by the
+    /// policy adopted most recently before it, a few hundred checks at a time in the order they
+    /// were observed; returns the checks that failed, each with the last passing check before
+    /// it.
+    fn judge_checks(&mut self) -> Result<Vec<FailedCheck>, LedgerError> {
+        const CHECKS_AT_A_TIME: usize = 256;
+        let mut failed = Vec::new();
+        let balances: Vec<EntryHash> = self.balances.keys().copied().collect();
+        for balance in balances {
+            let records = &self.balances[&balance];
+            // Every check once, by its time of observation as corrected.
+            let mut order: Vec<(Timestamp, u64, EntryHash)> = Vec::new();
+            for hash in &records.check_set {
+                let entries = self.check_with_corrections(records, hash)?;
+                if let Some(LabBody::BalanceCheck(c)) = current_body(&entries, hash) {
+                    let seq = entries
+                        .iter()
+                        .find(|e| e.hash == *hash)
+                        .map_or(0, |e| e.seq);
+                    order.push((c.observed_at, seq, *hash));
+                }
+            }
+            order.sort();
+            let mut last_pass: Option<(Timestamp, u64)> = None;
+            for chunk in order.chunks(CHECKS_AT_A_TIME) {
+                let records = &self.balances[&balance];
+                let mut entries = self.adoptions.clone();
+                entries.extend(
+                    records
+                        .entries
+                        .iter()
+                        .filter(|e| !matches!(e.body, LabBody::Calibration(_)))
+                        .cloned(),
+                );
+                for (_, _, hash) in chunk {
+                    entries.extend(self.check_with_corrections(records, hash)?);
+                }
+                let catalog = Catalog::from_entries(entries);
+                let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
+                let mut findings = Vec::new();
+                rules::balances::check(&evidence, &mut findings);
+                rules::timeliness::check(&evidence, &mut findings);
+                let failing: HashSet<EntryHash> = findings
+                    .iter()
+                    .filter(|f| f.code == Code::BalanceCheckFailed)
+                    .flat_map(|f| f.entries.iter().map(|e| e.hash))
+                    .collect();
+                for (at, seq, hash) in chunk {
+                    if failing.contains(hash) {
+                        let (since, since_seq) = last_pass.unwrap_or((Timestamp(i64::MIN), 0));
+                        failed.push(FailedCheck {
+                            balance,
+                            check: EntryRef {
+                                seq: *seq,
+                                hash: *hash,
+                            },
+                            at: *at,
+                            since,
+                            since_seq,
+                        });
+                    } else {
+                        last_pass = Some((*at, *seq));
+                    }
+                }
+                self.cross_run.extend(
+                    findings
+                        .into_iter()
+                        .filter(|f| f.run.is_none() && f.code != Code::WeighedBeforeFailedCheck),
+                );
+            }
+        }
+        Ok(failed)
     }
 
     /// Reads one entry back by hash and decodes it.
@@ -737,7 +837,12 @@ impl Stream {
     }
 
     /// Judges one run from its entries and what they depend on.
-    fn judge_run(&mut self, run: EntryHash, entries: Vec<CatalogEntry>) -> Result<(), LedgerError> {
+    fn judge_run(
+        &mut self,
+        run: EntryHash,
+        entries: Vec<CatalogEntry>,
+        first_time: bool,
+    ) -> Result<(), LedgerError> {
         let Some(LabBody::Run(body)) = current_body(&entries, &run) else {
             return Ok(());
         };
@@ -773,6 +878,14 @@ impl Stream {
         {
             all.extend(self.material(&hash)?);
         }
+        // The days the runs started (the calibration in force then gives the budget's
+        // sensitivity term).
+        let mut run_days = vec![rules::day_of(body.started_at)];
+        if let Some(std_hash) = standardization {
+            if let Some(LabBody::Run(std_body)) = current_body(&all, &std_hash) {
+                run_days.push(rules::day_of(std_body.started_at));
+            }
+        }
         // Balances weighed on, with their calibrations and the checks on the days of use.
         // (Weighings as recorded and as corrected: either may name the balance and day.)
         let mut days: BTreeMap<EntryHash, BTreeSet<NaiveDate>> = BTreeMap::new();
@@ -795,9 +908,9 @@ impl Stream {
         }
         for (balance, used) in &days {
             if let Some(records) = self.balances.get(balance) {
-                all.extend(records.entries.iter().cloned());
+                all.extend(records.in_force(used.iter().copied().chain(run_days.iter().copied())));
                 for day in used {
-                    all.extend(records.checks_on(*day));
+                    all.extend(self.checks_on(balance, *day)?);
                 }
             } else if let Some(found) = self.load(balance)? {
                 all.extend(self.load_with_corrections(found)?);
@@ -811,7 +924,8 @@ impl Stream {
             recomputed.push((std_hash, recomputer.run(std_hash)));
         }
         self.memory = Some(recomputer.into_memory());
-        let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), recomputed);
+        let evidence =
+            Evidence::with_documents(&catalog, self.adopted.clone(), recomputed).focused_on(run);
         let Some(view) = evidence.run(&run) else {
             return Ok(());
         };
@@ -879,7 +993,14 @@ impl Stream {
         self.forget_old_days();
         if let (Some(findings), Some(summary)) = (judged, summary) {
             self.scope_found = true;
-            self.judged.insert(run_seq, (findings, summary));
+            if first_time {
+                self.runs_checked += 1;
+            }
+            if findings.is_empty() && self.scope == Scope::Ledger && !self.keep_every_summary {
+                self.judged.remove(&run_seq);
+            } else {
+                self.judged.insert(run_seq, (findings, summary));
+            }
         }
         if is_standardization {
             let kept = Arc::new(own_entries);
@@ -943,7 +1064,7 @@ impl Stream {
     /// Judges what is left, then what came late, then the cross-run rules.
     fn finish(mut self) -> Result<Judged, LedgerError> {
         while let Some((_, bucket)) = self.buckets.pop_first() {
-            self.judge_run(bucket.run, bucket.entries)?;
+            self.judge_run(bucket.run, bucket.entries, true)?;
         }
         self.owner.clear();
         // Late arrivals: the run again, and the assays relying on a standardization.
@@ -963,22 +1084,40 @@ impl Stream {
         for (_, run) in ordered {
             self.standardizations.retain(|(h, _)| *h != run);
             let entries = self.load_run(&run)?;
-            self.judge_run(run, entries)?;
+            self.judge_run(run, entries, false)?;
         }
-        let failed = self.judge_checks();
+        let failed = self.judge_checks()?;
         self.failed_check_impact(failed)?;
         self.retests()?;
         self.reused_readings()?;
+        // A run whose only findings compare it with other runs still needs its summary.
+        let summarized: HashSet<String> =
+            self.judged.values().map(|(_, s)| s.run.clone()).collect();
+        let mut missing: BTreeSet<(u64, EntryHash)> = BTreeSet::new();
+        for f in &self.cross_run {
+            let Some(run_id) = &f.run else { continue };
+            if summarized.contains(run_id) {
+                continue;
+            }
+            for e in &f.entries {
+                if let Some(Some((_, id, _))) = self.run_identity(&e.hash).ok() {
+                    if &id == run_id {
+                        missing.insert((e.seq, e.hash));
+                    }
+                }
+            }
+        }
+        self.keep_every_summary = true;
+        for (_, run) in missing {
+            let entries = self.load_run(&run)?;
+            self.judge_run(run, entries, false)?;
+        }
         let mut findings = std::mem::take(&mut self.cross_run);
         let mut runs = Vec::new();
-        let mut runs_checked = 0;
+        let runs_checked = self.runs_checked;
         for (_, (run_findings, summary)) in std::mem::take(&mut self.judged) {
-            runs_checked += 1;
-            let keep = self.scope != Scope::Ledger || !run_findings.is_empty();
             findings.extend(run_findings);
-            if keep {
-                runs.push(summary);
-            }
+            runs.push(summary);
         }
         // Cross-run findings count towards their run's summary too.
         for summary in &mut runs {

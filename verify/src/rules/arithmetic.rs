@@ -18,7 +18,7 @@ use std::str::FromStr;
 
 /// Pushes the arithmetic findings of every run.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         let recomputed = match &run.recomputed {
             Ok(r) => r,
             Err(reason) => {

@@ -115,12 +115,14 @@ impl<'a> Balances<'a> {
 /// Pushes the balance findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let balances = Balances::gather(evidence);
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         for (entry, weighing) in weighings_of(evidence.catalog, run) {
             fitness(&balances, run, entry, &weighing, out);
         }
     }
-    failed_checks(evidence, &balances, out);
+    if !evidence.focused() {
+        failed_checks(evidence, &balances, out);
+    }
 }
 
 fn fitness(

@@ -11,7 +11,7 @@ use rust_decimal::Decimal;
 
 /// Pushes the capture findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         let weighings = weighings_of(evidence.catalog, run);
         keyed_against_captured(run, &weighings, out);
         let capture_expected = run.method().is_some_and(|m| m.readings_captured);

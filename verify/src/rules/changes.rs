@@ -44,7 +44,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
             });
         }
     }
-    for run in evidence.runs.iter().filter(|r| is_assay(r)) {
+    for run in evidence.judged_runs().filter(|r| is_assay(r)) {
         flips(evidence, run, out);
     }
 }

@@ -11,7 +11,7 @@ use std::collections::HashSet;
 
 /// Pushes the completeness findings of every run.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         orphans(evidence, run, out);
         determinations(evidence, run, out);
     }

@@ -31,7 +31,7 @@ fn date(text: &str) -> Option<NaiveDate> {
 /// Pushes the materials findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let catalog = evidence.catalog;
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         let used_on = day_of(last_observation(evidence, run));
         // Reference lot in date.
         if let Some(lot_hash) = run.run.reference_lot {

@@ -123,6 +123,9 @@ pub struct Evidence<'a> {
     /// One view per run, in sequence order.
     pub runs: Vec<RunView<'a>>,
     run_index: HashMap<EntryHash, usize>,
+    /// When set, the per-run rules judge only this run (the others are there to be looked
+    /// at, e.g. the standardization an assay relies on).
+    focus: Option<EntryHash>,
 }
 
 impl<'a> Evidence<'a> {
@@ -162,6 +165,7 @@ impl<'a> Evidence<'a> {
             policies,
             runs: Vec::new(),
             run_index: HashMap::new(),
+            focus: None,
         };
         let mut results: HashMap<EntryHash, Result<Recomputed, String>> =
             recomputed.into_iter().collect();
@@ -204,6 +208,30 @@ impl<'a> Evidence<'a> {
             evidence.runs.push(view);
         }
         evidence
+    }
+
+    /// The same evidence, with the per-run rules judging only the run at `run`.
+    pub fn focused_on(mut self, run: EntryHash) -> Evidence<'a> {
+        self.focus = Some(run);
+        self
+    }
+
+    /// Whether the evidence is focused on one run (the rules that compare runs with each other
+    /// then stay silent: the streaming validation applies them on its own).
+    pub fn focused(&self) -> bool {
+        self.focus.is_some()
+    }
+
+    /// Whether the per-run rules judge `run`.
+    pub fn judges(&self, run: &RunView<'_>) -> bool {
+        self.focus.is_none_or(|f| f == run.entry.hash)
+    }
+
+    /// The runs the per-run rules judge: every run, or the one in focus.
+    pub fn judged_runs(&self) -> impl Iterator<Item = &RunView<'a>> + '_ {
+        self.runs
+            .iter()
+            .filter(move |r| self.focus.is_none_or(|f| f == r.entry.hash))
     }
 
     /// The view of the run recorded at `hash`.

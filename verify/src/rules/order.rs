@@ -25,7 +25,7 @@ fn first_observation(evidence: &Evidence<'_>, run: &RunView<'_>) -> Timestamp {
 
 /// Pushes the order-of-events findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         if let Some((sample_entry, sample)) = &run.sample {
             let first = first_observation(evidence, run).min(run.run.started_at);
             if first < sample.received_at {
@@ -112,7 +112,7 @@ fn superseded(
 /// Observations timed after the entry recording them, beyond the policy's clock tolerance.
 fn timed_after_recording(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let catalog = evidence.catalog;
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         let tolerance = run
             .policy()
             .map_or(60, |p| p.records.clock_tolerance_seconds);

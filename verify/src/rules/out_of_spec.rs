@@ -24,7 +24,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
         })
         .collect();
     let mut failures: Vec<(&RunView<'_>, u64)> = Vec::new();
-    for run in evidence.runs.iter().filter(|r| is_assay(r)) {
+    for run in evidence.judged_runs().filter(|r| is_assay(r)) {
         let Some((decision, result_entry)) = decision_of(evidence, run) else {
             continue;
         };
@@ -60,7 +60,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     }
     // A retest: a later assay run of the same sample, started before an investigation of the
     // failing run was opened.
-    for (failed, opened_seq) in &failures {
+    for (failed, opened_seq) in failures.iter().filter(|_| !evidence.focused()) {
         let Some(sample) = failed.run.sample else {
             continue;
         };

@@ -26,6 +26,9 @@ fn fingerprint(w: &Weighing) -> Fingerprint {
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let mut seen: HashMap<Fingerprint, Vec<(usize, &CatalogEntry, Portion)>> = HashMap::new();
     for (index, run) in evidence.runs.iter().enumerate() {
+        if evidence.focused() && !evidence.judges(run) {
+            continue;
+        }
         let weighings = weighings_of(evidence.catalog, run);
         // Identical readings between different replicates of the run.
         let mut within: HashMap<(Portion, Fingerprint), Vec<(&CatalogEntry, u32)>> = HashMap::new();
@@ -63,6 +66,9 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
                 .involving(group.iter().map(|(e, _)| entry_ref(e))),
             );
         }
+    }
+    if evidence.focused() {
+        return;
     }
     let mut reused: Vec<Vec<(usize, &CatalogEntry, Portion)>> = seen
         .into_values()

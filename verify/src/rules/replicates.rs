@@ -10,7 +10,7 @@ use crate::outliers::{evaluate_agreement, Agreement, AgreementSettings};
 
 /// Pushes the replicate agreement findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         if let Some(agreement) = agreement_of(run) {
             push_findings(run, &agreement, out);
         }

@@ -39,7 +39,7 @@ fn late(entry: &CatalogEntry, observed: Timestamp, window_minutes: u32) -> Optio
 /// Pushes the timeliness findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let catalog = evidence.catalog;
-    for run in &evidence.runs {
+    for run in evidence.judged_runs() {
         let Some(policy) = run.policy() else { continue };
         let window = policy.records.contemporaneous_window_minutes;
         let clause = format!(
@@ -90,7 +90,10 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
         }
     }
     // Routine balance checks belong to no run: judged by the policy in force when recorded.
-    for entry in catalog.of_kind(BalanceCheck::KIND) {
+    for entry in catalog
+        .of_kind(BalanceCheck::KIND)
+        .filter(|_| !evidence.focused())
+    {
         let Some(adopted) = evidence.policy_before(entry.seq) else {
             continue;
         };

@@ -1136,6 +1136,11 @@ pub fn validation(built: &Built) -> Validation {
         "in memory and streaming differ"
     );
     assert_eq!(in_memory.runs_checked, streamed.runs_checked);
+    assert_eq!(
+        summaries(&in_memory),
+        summaries(&streamed),
+        "the run summaries differ"
+    );
     for window in [1, 3, 8, 21, 55] {
         let narrow = StreamOptions {
             window,
@@ -1179,6 +1184,17 @@ pub fn agree_at_every_window(built: &Built) {
         .expect("streaming validation runs");
         assert_eq!(comparable(&streamed), expected, "window {window} differs");
     }
+}
+
+/// Each summarized run with its result, conformance and counts of findings.
+fn summaries(v: &Validation) -> Vec<String> {
+    let mut rows: Vec<String> = v
+        .runs
+        .iter()
+        .map(|r| format!("{} {:?} {:?} {:?}", r.run, r.result, r.conforms, r.findings))
+        .collect();
+    rows.sort();
+    rows
 }
 
 /// What two validations must agree on: every finding's code, run, message and entries.
