@@ -1100,7 +1100,7 @@ impl Stream {
                 continue;
             }
             for e in &f.entries {
-                if let Some(Some((_, id, _))) = self.run_identity(&e.hash).ok() {
+                if let Ok(Some((_, id, _))) = self.run_identity(&e.hash) {
                     if &id == run_id {
                         missing.insert((e.seq, e.hash));
                     }
