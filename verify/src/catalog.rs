@@ -20,6 +20,7 @@ use assize_ledger::{
 use std::borrow::Cow;
 use std::collections::{HashMap, HashSet};
 use std::sync::mpsc::sync_channel;
+use std::sync::Arc;
 
 /// Most entries a catalog reserves room for before it reads them (it grows beyond as needed).
 const MAX_RESERVED_ENTRIES: usize = 1_000_000;
@@ -149,7 +150,7 @@ pub struct Defect {
 #[derive(Clone, Debug, Default)]
 pub struct Catalog {
     /// Lab entries in the order added (sequence order), so a run's entries sit together.
-    entries: Vec<CatalogEntry>,
+    entries: Vec<Arc<CatalogEntry>>,
     /// Where the entry stored under each hash is: the latest added, should two rows share a
     /// stored hash (possible only in an altered file).
     slots: HashMap<EntryHash, usize>,
@@ -263,12 +264,17 @@ impl Catalog {
     /// A catalog of these entries (put in sequence order; a repeated sequence number is kept
     /// once).
     pub fn from_entries(entries: impl IntoIterator<Item = CatalogEntry>) -> Catalog {
-        let mut chosen: Vec<CatalogEntry> = entries.into_iter().collect();
+        Catalog::from_shared(entries.into_iter().map(Arc::new))
+    }
+
+    /// Like [`Catalog::from_entries`], sharing entries held elsewhere instead of copying them.
+    pub fn from_shared(entries: impl IntoIterator<Item = Arc<CatalogEntry>>) -> Catalog {
+        let mut chosen: Vec<Arc<CatalogEntry>> = entries.into_iter().collect();
         chosen.sort_by_key(|e| e.seq);
         chosen.dedup_by_key(|e| e.seq);
         let mut catalog = Catalog::with_capacity(chosen.len());
         for entry in chosen {
-            catalog.insert(Prepared::Lab(entry));
+            catalog.insert_shared(entry);
         }
         catalog
     }
@@ -290,11 +296,15 @@ impl Catalog {
 
     /// Indexes one decoded entry.
     fn insert(&mut self, prepared: Prepared) {
-        let entry = match prepared {
-            Prepared::Lab(entry) => entry,
-            Prepared::Defect(defect) => return self.defects.push(defect),
-            Prepared::NotLab => return,
-        };
+        match prepared {
+            Prepared::Lab(entry) => self.insert_shared(Arc::new(entry)),
+            Prepared::Defect(defect) => self.defects.push(defect),
+            Prepared::NotLab => {}
+        }
+    }
+
+    /// Indexes one decoded entry held elsewhere too.
+    fn insert_shared(&mut self, entry: Arc<CatalogEntry>) {
         let slot = self.entries.len();
         if let Some(id) = entry.body.id() {
             self.ids
@@ -342,7 +352,7 @@ impl Catalog {
 
     /// An entry as recorded.
     pub fn entry(&self, hash: &EntryHash) -> Option<&CatalogEntry> {
-        self.slots.get(hash).map(|slot| &self.entries[*slot])
+        self.slots.get(hash).map(|slot| &*self.entries[*slot])
     }
 
     /// The body now in force: the latest signed correction's replacement, else the original.
@@ -413,7 +423,7 @@ impl Catalog {
             .unwrap_or_default()
             .iter()
             .filter(|slot| !self.replaced.contains(slot))
-            .map(|slot| &self.entries[*slot])
+            .map(|slot| &*self.entries[*slot])
             .collect();
         // Entries are added in sequence order, so this only checks, unless a caller did not.
         if !list.is_sorted_by_key(|e| e.seq) {
@@ -423,7 +433,7 @@ impl Catalog {
     }
 
     /// Every lab entry as recorded, in the order added.
-    pub fn entries(&self) -> &[CatalogEntry] {
+    pub fn entries(&self) -> &[Arc<CatalogEntry>] {
         &self.entries
     }
 
@@ -798,7 +808,8 @@ endpoint = "faint pink persisting 30 s"
 
         // The same correction without a signature (as only a foreign writer could store it)
         // stays listed but is not in force.
-        let mut unsigned: Vec<CatalogEntry> = corrected.entries().to_vec();
+        let mut unsigned: Vec<CatalogEntry> =
+            corrected.entries().iter().map(|e| (**e).clone()).collect();
         for e in unsigned.iter_mut().filter(|e| e.kind == Correction::KIND) {
             e.signed = false;
         }

@@ -39,6 +39,9 @@ use std::hash::{Hash, Hasher};
 use std::sync::mpsc::sync_channel;
 use std::sync::Arc;
 
+/// A decoded lab entry, shared between the tables and the small catalogs built from them.
+type Shared = Arc<CatalogEntry>;
+
 /// Entries the replay hands over at a time.
 const ENTRIES_PER_HANDOFF: usize = 256;
 /// Hand-offs that may wait for the judging thread.
@@ -170,28 +173,30 @@ fn finish_validation(
 /// A run's entries while the walk is within the window of it.
 struct Bucket {
     run: EntryHash,
-    entries: Vec<CatalogEntry>,
+    entries: Vec<Shared>,
 }
 
 /// A balance and what is recorded about it.
 #[derive(Default)]
 struct BalanceRecords {
     /// The balance entry and its calibrations, with corrections of any of them.
-    entries: Vec<CatalogEntry>,
+    entries: Vec<Shared>,
     /// Recent routine checks and corrections of checks, in the order walked (older ones are
     /// read back by index when needed).
-    checks: Vec<CatalogEntry>,
+    checks: Vec<Shared>,
     /// Every check entry by UTC day of observation (as recorded and as corrected).
     checks_by_day: BTreeMap<NaiveDate, Vec<EntryHash>>,
     /// Every check entry of the balance.
     check_set: HashSet<EntryHash>,
+    /// When each calibration among `entries` was performed, as recorded.
+    performed: Vec<(NaiveDate, u64, EntryHash)>,
 }
 
 impl BalanceRecords {
     /// The balance entry, every correction, and the calibrations in force on any of `days`
     /// (the latest performed on or before the day; a calibration that was corrected is always
     /// included, so the choice is made on its corrected date).
-    fn in_force(&self, days: impl Iterator<Item = NaiveDate>) -> Vec<CatalogEntry> {
+    fn in_force(&self, days: impl Iterator<Item = NaiveDate>) -> Vec<Shared> {
         let corrected: HashSet<EntryHash> = self
             .entries
             .iter()
@@ -200,20 +205,11 @@ impl BalanceRecords {
                 _ => None,
             })
             .collect();
-        let performed = |e: &CatalogEntry| match &e.body {
-            LabBody::Calibration(c) => NaiveDate::parse_from_str(&c.performed_on, "%Y-%m-%d").ok(),
-            _ => None,
-        };
         let mut chosen: HashSet<EntryHash> = HashSet::new();
         for day in days {
-            let latest = self
-                .entries
-                .iter()
-                .filter_map(|e| performed(e).map(|p| (p, e.seq, e.hash)))
-                .filter(|(p, _, _)| *p <= day)
-                .max();
+            let latest = self.performed.iter().filter(|(p, _, _)| *p <= day).max();
             if let Some((_, _, hash)) = latest {
-                chosen.insert(hash);
+                chosen.insert(*hash);
             }
         }
         self.entries
@@ -229,7 +225,7 @@ impl BalanceRecords {
 
 /// A lot, titrant or sample, with its corrections.
 struct Material {
-    entries: Vec<CatalogEntry>,
+    entries: Vec<Shared>,
     last_used: u64,
 }
 
@@ -256,7 +252,7 @@ struct Stream {
     scope: Scope,
     options: StreamOptions,
     walked: u64,
-    adoptions: Vec<CatalogEntry>,
+    adoptions: Vec<Shared>,
     adopted: HashMap<EntryHash, Arc<Adopted>>,
     balances: HashMap<EntryHash, BalanceRecords>,
     /// Which balance a calibration or check entry belongs to.
@@ -266,7 +262,7 @@ struct Stream {
     /// Bucket (run sequence number) of every entry in a bucket.
     owner: HashMap<EntryHash, u64>,
     /// Standardizations already judged, newest last.
-    standardizations: VecDeque<(EntryHash, Arc<Vec<CatalogEntry>>)>,
+    standardizations: VecDeque<(EntryHash, Arc<Vec<Shared>>)>,
     /// Runs to judge again at the end.
     again: BTreeSet<EntryHash>,
     defects: Vec<Defect>,
@@ -325,7 +321,7 @@ impl Stream {
         match Catalog::decode_entry(entry) {
             Err(defect) => self.defects.push(defect),
             Ok(None) => {}
-            Ok(Some(lab)) => self.file(lab)?,
+            Ok(Some(lab)) => self.file(Arc::new(lab))?,
         }
         while let Some((&seq, _)) = self.buckets.first_key_value() {
             if seq + self.options.window > self.walked {
@@ -348,11 +344,11 @@ impl Stream {
     }
 
     /// Puts a lab entry where it belongs.
-    fn file(&mut self, entry: CatalogEntry) -> Result<(), LedgerError> {
+    fn file(&mut self, entry: Shared) -> Result<(), LedgerError> {
         let target = match &entry.body {
             LabBody::Adoption(_) => {
                 self.adoptions.push(entry);
-                self.adopted = adopted_documents(&Catalog::from_entries(self.adoptions.clone()));
+                self.adopted = adopted_documents(&Catalog::from_shared(self.adoptions.clone()));
                 return Ok(());
             }
             LabBody::Balance(_) => {
@@ -364,11 +360,11 @@ impl Stream {
                 self.balance_of.insert(entry.hash, c.balance);
                 let balance = c.balance;
                 let from = NaiveDate::parse_from_str(&c.performed_on, "%Y-%m-%d").ok();
-                self.balances
-                    .entry(balance)
-                    .or_default()
-                    .entries
-                    .push(entry);
+                let records = self.balances.entry(balance).or_default();
+                if let Some(day) = from {
+                    records.performed.push((day, entry.seq, entry.hash));
+                }
+                records.entries.push(entry);
                 self.judge_again_after(balance, from);
                 return Ok(());
             }
@@ -429,7 +425,7 @@ impl Stream {
 
     /// A correction of an adoption, balance record or material; `CHG-02` when it has no
     /// reason. False when the corrected entry is none of those.
-    fn file_outside_runs(&mut self, entry: &CatalogEntry, target: EntryHash) -> bool {
+    fn file_outside_runs(&mut self, entry: &Shared, target: EntryHash) -> bool {
         let filed = if let Some(m) = self.materials.get_mut(&target) {
             m.entries.push(entry.clone());
             self.judge_again_naming(&target);
@@ -499,7 +495,7 @@ impl Stream {
     }
 
     /// A correction of a material the window no longer holds: read the material back.
-    fn store_material_correction(&mut self, entry: &CatalogEntry, target: EntryHash) -> bool {
+    fn store_material_correction(&mut self, entry: &Shared, target: EntryHash) -> bool {
         match self.load(&target) {
             Ok(Some(found))
                 if matches!(
@@ -532,7 +528,7 @@ impl Stream {
     /// A routine balance check, filed by its day of observation; a run already judged that
     /// weighed on that balance that day is judged again at the end. The check's own findings
     /// (`BAL-04`, `TIM-01`) are made at the end, with its corrections applied.
-    fn file_check(&mut self, entry: CatalogEntry) -> Result<(), LedgerError> {
+    fn file_check(&mut self, entry: Shared) -> Result<(), LedgerError> {
         let LabBody::BalanceCheck(check) = &entry.body else {
             unreachable!("called for checks")
         };
@@ -583,11 +579,7 @@ impl Stream {
 
     /// A balance's checks observed on `day`, with every correction of them: from memory when
     /// recent, else read back by index.
-    fn checks_on(
-        &self,
-        balance: &EntryHash,
-        day: NaiveDate,
-    ) -> Result<Vec<CatalogEntry>, LedgerError> {
+    fn checks_on(&self, balance: &EntryHash, day: NaiveDate) -> Result<Vec<Shared>, LedgerError> {
         let Some(records) = self.balances.get(balance) else {
             return Ok(Vec::new());
         };
@@ -606,8 +598,8 @@ impl Stream {
         &self,
         records: &BalanceRecords,
         hash: &EntryHash,
-    ) -> Result<Vec<CatalogEntry>, LedgerError> {
-        let recent: Vec<CatalogEntry> = records
+    ) -> Result<Vec<Shared>, LedgerError> {
+        let recent: Vec<Shared> = records
             .checks
             .iter()
             .filter(|c| {
@@ -662,7 +654,7 @@ impl Stream {
                 for (_, _, hash) in chunk {
                     entries.extend(self.check_with_corrections(records, hash)?);
                 }
-                let catalog = Catalog::from_entries(entries);
+                let catalog = Catalog::from_shared(entries);
                 let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
                 let mut findings = Vec::new();
                 rules::balances::check(&evidence, &mut findings);
@@ -700,7 +692,7 @@ impl Stream {
     }
 
     /// Reads one entry back by hash and decodes it.
-    fn load(&self, hash: &EntryHash) -> Result<Option<CatalogEntry>, LedgerError> {
+    fn load(&self, hash: &EntryHash) -> Result<Option<Shared>, LedgerError> {
         let Some(seq) = self.store.seq_of_hash(hash)? else {
             return Ok(None);
         };
@@ -708,13 +700,13 @@ impl Stream {
             return Ok(None);
         }
         match self.store.entry(seq)? {
-            Some(entry) => Ok(Catalog::decode_entry(entry).ok().flatten()),
+            Some(entry) => Ok(Catalog::decode_entry(entry).ok().flatten().map(Arc::new)),
             None => Ok(None),
         }
     }
 
     /// The entries that name `hash` (as the walk has seen them), decoded.
-    fn naming(&self, hash: &EntryHash) -> Result<Vec<CatalogEntry>, LedgerError> {
+    fn naming(&self, hash: &EntryHash) -> Result<Vec<Shared>, LedgerError> {
         let mut found = Vec::new();
         for seq in self.store.referencing(hash)? {
             if seq > self.walked {
@@ -722,7 +714,7 @@ impl Stream {
             }
             if let Some(entry) = self.store.entry(seq)? {
                 if let Ok(Some(lab)) = Catalog::decode_entry(entry) {
-                    found.push(lab);
+                    found.push(Arc::new(lab));
                 }
             }
         }
@@ -730,7 +722,7 @@ impl Stream {
     }
 
     /// An entry read back with the corrections of it.
-    fn load_with_corrections(&self, entry: CatalogEntry) -> Result<Vec<CatalogEntry>, LedgerError> {
+    fn load_with_corrections(&self, entry: Shared) -> Result<Vec<Shared>, LedgerError> {
         let corrections = self
             .naming(&entry.hash)?
             .into_iter()
@@ -766,7 +758,7 @@ impl Stream {
     }
 
     /// Everything recorded about a run, read back from the ledger's indexes.
-    fn load_run(&self, run: &EntryHash) -> Result<Vec<CatalogEntry>, LedgerError> {
+    fn load_run(&self, run: &EntryHash) -> Result<Vec<Shared>, LedgerError> {
         let Some(run_entry) = self.load(run)? else {
             return Ok(Vec::new());
         };
@@ -794,7 +786,7 @@ impl Stream {
     }
 
     /// A material's entries, from the table or read back.
-    fn material(&mut self, hash: &EntryHash) -> Result<Vec<CatalogEntry>, LedgerError> {
+    fn material(&mut self, hash: &EntryHash) -> Result<Vec<Shared>, LedgerError> {
         if let Some(m) = self.materials.get_mut(hash) {
             m.last_used = self.walked;
             return Ok(m.entries.clone());
@@ -817,7 +809,7 @@ impl Stream {
     fn standardization_entries(
         &mut self,
         hash: &EntryHash,
-    ) -> Result<Arc<Vec<CatalogEntry>>, LedgerError> {
+    ) -> Result<Arc<Vec<Shared>>, LedgerError> {
         if let Some(bucket) = self.owner.get(hash).and_then(|seq| self.buckets.get(seq)) {
             return Ok(Arc::new(bucket.entries.clone()));
         }
@@ -840,7 +832,7 @@ impl Stream {
     fn judge_run(
         &mut self,
         run: EntryHash,
-        entries: Vec<CatalogEntry>,
+        entries: Vec<Shared>,
         first_time: bool,
     ) -> Result<(), LedgerError> {
         let Some(LabBody::Run(body)) = current_body(&entries, &run) else {
@@ -916,7 +908,7 @@ impl Stream {
                 all.extend(self.load_with_corrections(found)?);
             }
         }
-        let catalog = Catalog::from_entries(all);
+        let catalog = Catalog::from_shared(all);
         let memory = self.memory.take().unwrap_or_default();
         let mut recomputer = Recomputer::with_memory(&catalog, memory);
         let mut recomputed = vec![(run, recomputer.run(run))];
@@ -1147,14 +1139,14 @@ impl Stream {
             return Ok(None);
         };
         let entries = self.load_with_corrections(entry.clone())?;
-        let catalog = Catalog::from_entries(entries);
+        let catalog = Catalog::from_shared(entries);
         let Some(LabBody::Run(run)) = catalog.current(hash) else {
             return Ok(None);
         };
         let sample = match run.sample {
             Some(s) => match self.load(&s)? {
                 Some(found) => {
-                    let catalog = Catalog::from_entries(self.load_with_corrections(found)?);
+                    let catalog = Catalog::from_shared(self.load_with_corrections(found)?);
                     match catalog.current(&s) {
                         Some(LabBody::Sample(sample)) => Some(sample.id),
                         _ => None,
@@ -1198,7 +1190,8 @@ impl Stream {
                 let Ok(Some(lab)) = Catalog::decode_entry(entry) else {
                     continue;
                 };
-                let current = Catalog::from_entries(self.load_with_corrections(lab.clone())?);
+                let lab = Arc::new(lab);
+                let current = Catalog::from_shared(self.load_with_corrections(lab.clone())?);
                 if let Some(LabBody::Weighing(w)) = current.current(&lab.hash) {
                     if w.first_at >= f.since && w.first_at < f.at {
                         affected.entry(w.run).or_default().push(entry_ref(&lab));
@@ -1335,7 +1328,7 @@ impl Stream {
 }
 
 /// The body in force for `hash` among `entries` (its latest signed correction applied).
-fn current_body(entries: &[CatalogEntry], hash: &EntryHash) -> Option<LabBody> {
+fn current_body(entries: &[Shared], hash: &EntryHash) -> Option<LabBody> {
     let original = entries.iter().find(|e| e.hash == *hash)?;
     let corrected = entries
         .iter()
