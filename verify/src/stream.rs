@@ -62,7 +62,7 @@ impl Default for StreamOptions {
     fn default() -> Self {
         StreamOptions {
             window: 20_000,
-            fingerprint_horizon: 65_536,
+            fingerprint_horizon: 32_768,
         }
     }
 }
@@ -184,10 +184,9 @@ struct BalanceRecords {
     /// Recent routine checks and corrections of checks, in the order walked (older ones are
     /// read back by index when needed).
     checks: Vec<Shared>,
-    /// Every check entry by UTC day of observation (as recorded and as corrected).
-    checks_by_day: BTreeMap<NaiveDate, Vec<EntryHash>>,
-    /// Every check entry of the balance.
-    check_set: HashSet<EntryHash>,
+    /// The sequence number of every check by UTC day of observation (as recorded and as
+    /// corrected): a few bytes a check, the only thing kept of old checks.
+    checks_by_day: BTreeMap<NaiveDate, Vec<u64>>,
     /// When each calibration among `entries` was performed, as recorded.
     performed: Vec<(NaiveDate, u64, EntryHash)>,
 }
@@ -333,11 +332,16 @@ impl Stream {
             }
             self.judge_run(bucket.run, bucket.entries, true)?;
         }
-        if self.walked % 4096 == 0 {
+        if self.walked % self.options.window.clamp(1, 4096) == 0 {
             let horizon = self.walked.saturating_sub(self.options.window);
             self.materials.retain(|_, m| m.last_used >= horizon);
+            // Checks are kept two windows, so the runs still being judged find theirs.
+            let check_horizon = self.walked.saturating_sub(2 * self.options.window);
             for records in self.balances.values_mut() {
-                records.checks.retain(|c| c.seq >= horizon);
+                for old in records.checks.iter().filter(|c| c.seq < check_horizon) {
+                    self.balance_of.remove(&old.hash);
+                }
+                records.checks.retain(|c| c.seq >= check_horizon);
             }
         }
         Ok(())
@@ -436,27 +440,9 @@ impl Stream {
             true
         } else if let Some(&balance) = self.balance_of.get(&target) {
             let records = self.balances.entry(balance).or_default();
-            let is_check = records.check_set.contains(&target);
+            let is_check = records.checks.iter().any(|c| c.hash == target);
             if is_check {
-                records.checks.push(entry.clone());
-                let mut days: Vec<NaiveDate> = records
-                    .checks_by_day
-                    .iter()
-                    .filter(|(_, hashes)| hashes.contains(&target))
-                    .map(|(day, _)| *day)
-                    .collect();
-                if let LabBody::Correction(c) = &entry.body {
-                    if let Ok(Some(LabBody::BalanceCheck(k))) =
-                        LabBody::decode(&c.kind, &c.replacement)
-                    {
-                        let day = rules::day_of(k.observed_at);
-                        records.checks_by_day.entry(day).or_default().push(target);
-                        days.push(day);
-                    }
-                }
-                for day in days {
-                    self.judge_again_on(balance, day);
-                }
+                self.file_check_correction(balance, target, entry);
             } else {
                 records.entries.push(entry.clone());
                 self.judge_again_after(balance, None);
@@ -465,8 +451,17 @@ impl Stream {
         } else if self.adoptions.iter().any(|a| a.hash == target) {
             self.adoptions.push(entry.clone());
             true
+        } else if let Ok(Some(old)) = self.load(&target) {
+            match &old.body {
+                LabBody::BalanceCheck(k) => {
+                    let balance = k.balance;
+                    self.file_check_correction(balance, target, entry);
+                    true
+                }
+                _ => self.store_material_correction(entry, target),
+            }
         } else {
-            self.store_material_correction(entry, target)
+            false
         };
         if filed {
             if let LabBody::Correction(c) = &entry.body {
@@ -540,11 +535,39 @@ impl Stream {
             .checks_by_day
             .entry(day)
             .or_default()
-            .push(entry.hash);
-        records.check_set.insert(entry.hash);
+            .push(entry.seq);
         records.checks.push(entry);
         self.judge_again_on(balance, day);
         Ok(())
+    }
+
+    /// A correction of a routine check: kept with the recent checks, filed under the day it
+    /// gives as well, and the runs of both days judged again.
+    fn file_check_correction(&mut self, balance: EntryHash, target: EntryHash, entry: &Shared) {
+        let Some(target_seq) = self.seq_of(&target) else {
+            return;
+        };
+        let records = self.balances.entry(balance).or_default();
+        records.checks.push(entry.clone());
+        let mut days: Vec<NaiveDate> = records
+            .checks_by_day
+            .iter()
+            .filter(|(_, seqs)| seqs.contains(&target_seq))
+            .map(|(day, _)| *day)
+            .collect();
+        if let LabBody::Correction(c) = &entry.body {
+            if let Ok(Some(LabBody::BalanceCheck(k))) = LabBody::decode(&c.kind, &c.replacement) {
+                let day = rules::day_of(k.observed_at);
+                let seqs = records.checks_by_day.entry(day).or_default();
+                if !seqs.contains(&target_seq) {
+                    seqs.push(target_seq);
+                }
+                days.push(day);
+            }
+        }
+        for day in days {
+            self.judge_again_on(balance, day);
+        }
     }
 
     /// Runs already judged that weighed on `balance` on `day` are judged again at the end.
@@ -583,12 +606,12 @@ impl Stream {
         let Some(records) = self.balances.get(balance) else {
             return Ok(Vec::new());
         };
-        let Some(hashes) = records.checks_by_day.get(&day) else {
+        let Some(seqs) = records.checks_by_day.get(&day) else {
             return Ok(Vec::new());
         };
         let mut found = Vec::new();
-        for hash in hashes {
-            found.extend(self.check_with_corrections(records, hash)?);
+        for seq in seqs {
+            found.extend(self.check_with_corrections(records, *seq)?);
         }
         Ok(found)
     }
@@ -597,23 +620,26 @@ impl Stream {
     fn check_with_corrections(
         &self,
         records: &BalanceRecords,
-        hash: &EntryHash,
+        seq: u64,
     ) -> Result<Vec<Shared>, LedgerError> {
-        let recent: Vec<Shared> = records
-            .checks
-            .iter()
-            .filter(|c| {
-                c.hash == *hash
-                    || matches!(&c.body, LabBody::Correction(k) if k.supersedes == *hash)
-            })
-            .cloned()
-            .collect();
-        if recent.iter().any(|c| c.hash == *hash) {
-            return Ok(recent);
+        if let Some(check) = records.checks.iter().find(|c| c.seq == seq) {
+            let hash = check.hash;
+            return Ok(records
+                .checks
+                .iter()
+                .filter(|c| {
+                    c.hash == hash
+                        || matches!(&c.body, LabBody::Correction(k) if k.supersedes == hash)
+                })
+                .cloned()
+                .collect());
         }
-        match self.load(hash)? {
-            Some(found) => self.load_with_corrections(found),
-            None => Ok(Vec::new()),
+        let Some(entry) = self.store.entry(seq)? else {
+            return Ok(Vec::new());
+        };
+        match Catalog::decode_entry(entry) {
+            Ok(Some(found)) => self.load_with_corrections(Arc::new(found)),
+            _ => Ok(Vec::new()),
         }
     }
 
@@ -628,15 +654,17 @@ impl Stream {
         for balance in balances {
             let records = &self.balances[&balance];
             // Every check once, by its time of observation as corrected.
+            let mut seqs: Vec<u64> = records.checks_by_day.values().flatten().copied().collect();
+            seqs.sort_unstable();
+            seqs.dedup();
             let mut order: Vec<(Timestamp, u64, EntryHash)> = Vec::new();
-            for hash in &records.check_set {
-                let entries = self.check_with_corrections(records, hash)?;
-                if let Some(LabBody::BalanceCheck(c)) = current_body(&entries, hash) {
-                    let seq = entries
-                        .iter()
-                        .find(|e| e.hash == *hash)
-                        .map_or(0, |e| e.seq);
-                    order.push((c.observed_at, seq, *hash));
+            for seq in seqs {
+                let entries = self.check_with_corrections(records, seq)?;
+                let Some(hash) = entries.iter().find(|e| e.seq == seq).map(|e| e.hash) else {
+                    continue;
+                };
+                if let Some(LabBody::BalanceCheck(c)) = current_body(&entries, &hash) {
+                    order.push((c.observed_at, seq, hash));
                 }
             }
             order.sort();
@@ -651,8 +679,8 @@ impl Stream {
                         .filter(|e| !matches!(e.body, LabBody::Calibration(_)))
                         .cloned(),
                 );
-                for (_, _, hash) in chunk {
-                    entries.extend(self.check_with_corrections(records, hash)?);
+                for (_, seq, _) in chunk {
+                    entries.extend(self.check_with_corrections(records, *seq)?);
                 }
                 let catalog = Catalog::from_shared(entries);
                 let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), Vec::new());
