@@ -1,5 +1,5 @@
 //! The reviewer scenario end to end through the real `assize` binary: a clean standardization
-//! and assay pass replay and are reviewed and approved; the same work with one transcription
+//! and assay pass replay and are reviewed and approved; the same work with one copying
 //! slip, one expired reference standard, one unsigned correction and one self-review produces
 //! exactly those four findings, and approval is refused until the approver records a
 //! justification, which replay then shows as its own finding.
@@ -559,7 +559,7 @@ fn worksheet_batch(bench: &Bench, case: Case) -> String {
     batch.0
 }
 
-/// The last two digits swapped: the transcription slip (they must differ, or nothing slipped).
+/// The last two digits swapped: the copying slip (they must differ, or nothing slipped).
 fn transposed(value: &str) -> String {
     let mut chars: Vec<char> = value.chars().collect();
     let n = chars.len();

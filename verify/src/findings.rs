@@ -227,7 +227,7 @@ rules! {
         "Look for an assignable cause at the bench; a statistical flag alone is not a reason to invalidate.";
     LateEntry = "TIM-01", Review, "entry recorded later than the contemporaneous window after the event",
         "ALCOA+ contemporaneous; lab policy window",
-        "Ask the analyst what the entry was transcribed from and check it against that original.";
+        "Ask the analyst what the entry was copied from and check it against that original.";
     SharedTimestamp = "TIM-02", Review, "many observations carry one time stamp",
         "ALCOA+ contemporaneous",
         "Observations at one instant suggest back-filling: compare with the instrument's own records.";
