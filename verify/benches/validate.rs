@@ -20,6 +20,9 @@
 //!    a child process (this executable again, with `--memory-child PHASE PATH`), reading each
 //!    child's peak resident memory (`VmHWM`); flat means large / small ≤ 1.10.
 //!
+//! For profiling, `--build-only ENTRIES PATH` builds one ledger and keeps it, and
+//! `--memory-child PHASE PATH` then runs one phase on it.
+//!
 //! Inputs are fixed (keys, readings from a seeded generator, a clock the builder sets), so only
 //! the timings and the random ledger ids differ between runs. It writes only inside a temporary
 //! directory under `ASSIZE_BENCH_DIR` (default: cargo's target tmp dir), prints the table on
@@ -56,6 +59,9 @@ const TARGET_RATIO: f64 = 1.5;
 const TARGET_MEMORY_GROWTH: f64 = 1.10;
 /// Private argument that turns this executable into a memory child.
 const CHILD_FLAG: &str = "--memory-child";
+/// Private argument that only builds a ledger and keeps it (for profiling a phase on it with
+/// `--memory-child`): `--build-only ENTRIES PATH`.
+const BUILD_FLAG: &str = "--build-only";
 /// First word of the line a memory child prints for its parent.
 const CHILD_REPORT: &str = "assize-validate-child";
 
@@ -157,6 +163,17 @@ fn main() -> BenchResult<()> {
             return Err(format!("usage: {CHILD_FLAG} integrity|validation|in-memory PATH").into());
         };
         return run_memory_child(phase, Path::new(path));
+    }
+    if let Some(position) = args.iter().position(|a| a == BUILD_FLAG) {
+        let entries = args.get(position + 1).and_then(|n| n.parse::<u64>().ok());
+        let path = args.get(position + 2);
+        let (Some(entries), Some(path)) = (entries, path) else {
+            return Err(format!("usage: {BUILD_FLAG} ENTRIES PATH").into());
+        };
+        let spec = LedgerSpec::realistic_with_entries(entries.max(MIN_ENTRIES));
+        let built = build_ledger(&spec, Path::new(path))?;
+        print_ledger("ledger", &spec, &built, Path::new(path));
+        return Ok(());
     }
     let plan = Plan::from_env()?;
     print_machine();

@@ -21,11 +21,12 @@ use crate::recompute::{
 use crate::records::{Replicate, Run, RunKind, Weighing};
 use crate::uncertainty::CoverageRule;
 use assize_ledger::{EntryHash, Record};
+use foldhash::{HashMap, HashMapExt};
 use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use serde::Serialize;
 use std::borrow::Cow;
-use std::collections::HashMap;
+use std::collections::VecDeque;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Arc;
 
@@ -159,18 +160,36 @@ pub struct Recomputer<'a> {
     standardizations: HashMap<EntryHash, Arc<Standardization>>,
     /// A standardization's outcome, by (run entry, policy adoption entry of the settings).
     standardization_outcomes: HashMap<(EntryHash, EntryHash), Result<Outcome, String>>,
+    /// The last few standardizations worked out, with the very inputs they were worked out
+    /// from (carried between recomputers in [`DocumentMemory`]).
+    recent_standardizations: VecDeque<WorkedStandardization>,
+}
+
+/// How many worked-out standardizations a [`DocumentMemory`] keeps: enough for the assays of
+/// the last few titrants, which is when a standardization is asked for again.
+const RECENT_STANDARDIZATIONS: usize = 8;
+
+/// A standardization's outcome and exactly what it was computed from: [`standardize`] is a
+/// function of these two alone, so the same inputs may take the outcome without redoing it.
+struct WorkedStandardization {
+    settings: Settings,
+    data: StandardizationData,
+    outcome: Result<Outcome, String>,
 }
 
 /// What a [`Recomputer`] remembers that does not depend on its catalog: parsed documents,
-/// stoichiometries and molar masses, all keyed by adoption entry or formula. Carry it from one
-/// recomputer to the next ([`Recomputer::with_memory`], [`Recomputer::into_memory`]) when
-/// many small catalogs share the same adoptions.
+/// stoichiometries and molar masses, all keyed by adoption entry or formula, and the last few
+/// standardizations worked out, each kept with the full inputs it came from (so an outcome is
+/// reused only for identical inputs, whatever catalog they were assembled from). Carry it
+/// from one recomputer to the next ([`Recomputer::with_memory`], [`Recomputer::into_memory`])
+/// when many small catalogs share the same adoptions.
 #[derive(Default)]
 pub struct DocumentMemory {
     methods: HashMap<EntryHash, Result<Arc<Method>, String>>,
     policies: HashMap<EntryHash, Result<Arc<LabPolicy>, String>>,
     stoichiometries: HashMap<EntryHash, Result<Stoichiometry, String>>,
     molar_masses: HashMap<String, Result<MolarMass, String>>,
+    recent_standardizations: VecDeque<WorkedStandardization>,
 }
 
 /// A run named as a standardization, as assembled once.
@@ -195,6 +214,7 @@ impl<'a> Recomputer<'a> {
             balances: HashMap::new(),
             standardizations: HashMap::new(),
             standardization_outcomes: HashMap::new(),
+            recent_standardizations: VecDeque::new(),
         }
     }
 
@@ -206,6 +226,7 @@ impl<'a> Recomputer<'a> {
             policies: memory.policies,
             stoichiometries: memory.stoichiometries,
             molar_masses: memory.molar_masses,
+            recent_standardizations: memory.recent_standardizations,
             ..Recomputer::new(catalog)
         }
     }
@@ -217,6 +238,7 @@ impl<'a> Recomputer<'a> {
             policies: self.policies,
             stoichiometries: self.stoichiometries,
             molar_masses: self.molar_masses,
+            recent_standardizations: self.recent_standardizations,
         }
     }
 
@@ -287,7 +309,8 @@ impl<'a> Recomputer<'a> {
     }
 
     /// What [`standardize`] gives for the standardization at `std_hash` under the settings of
-    /// the policy adopted at `policy`, computed once.
+    /// the policy adopted at `policy`, computed once (or taken from a recent recomputer that
+    /// worked it out from identical inputs).
     fn standardization_outcome(
         &mut self,
         std_hash: EntryHash,
@@ -295,10 +318,29 @@ impl<'a> Recomputer<'a> {
         data: &StandardizationData,
         settings: Settings,
     ) -> Result<Outcome, String> {
+        if let Some(known) = self.standardization_outcomes.get(&(std_hash, policy)) {
+            return known.clone();
+        }
+        if let Some(worked) = self
+            .recent_standardizations
+            .iter()
+            .find(|w| w.settings == settings && w.data == *data)
+        {
+            return worked.outcome.clone();
+        }
+        let outcome = standardize(data, settings).map_err(|e| e.to_string());
+        if self.recent_standardizations.len() == RECENT_STANDARDIZATIONS {
+            self.recent_standardizations.pop_front();
+        }
+        self.recent_standardizations
+            .push_back(WorkedStandardization {
+                settings,
+                data: data.clone(),
+                outcome: outcome.clone(),
+            });
         self.standardization_outcomes
-            .entry((std_hash, policy))
-            .or_insert_with(|| standardize(data, settings).map_err(|e| e.to_string()))
-            .clone()
+            .insert((std_hash, policy), outcome.clone());
+        outcome
     }
 
     /// The run, its adopted method and policy (see [`context`]).

@@ -17,8 +17,8 @@ use assize_ledger::store::Store;
 use assize_ledger::{
     codec, Entry, EntryHash, IntegrityReport, Ledger, LedgerError, Record, ReplayOptions, Timestamp,
 };
+use foldhash::{HashMap, HashMapExt, HashSet};
 use std::borrow::Cow;
-use std::collections::{HashMap, HashSet};
 use std::sync::mpsc::sync_channel;
 use std::sync::Arc;
 
@@ -156,8 +156,10 @@ pub struct Catalog {
     slots: HashMap<EntryHash, usize>,
     /// Slots whose hash a later row took over; lists naming them resolve through `slots`.
     replaced: HashSet<usize>,
-    kinds: HashMap<String, Vec<usize>>,
-    ids: HashMap<(String, String), EntryHash>,
+    /// Slots by kind name; a list, as a ledger has a score of lab kinds at most.
+    kinds: Vec<(String, Vec<usize>)>,
+    /// Slots of entries with an own id, by id (the kind is checked on lookup), first first.
+    ids: HashMap<String, Vec<usize>>,
     by_run: HashMap<EntryHash, Vec<usize>>,
     corrections: HashMap<EntryHash, Vec<usize>>,
     invalidations: HashMap<EntryHash, Vec<usize>>,
@@ -307,9 +309,12 @@ impl Catalog {
     fn insert_shared(&mut self, entry: Arc<CatalogEntry>) {
         let slot = self.entries.len();
         if let Some(id) = entry.body.id() {
-            self.ids
-                .entry((entry.kind.clone(), id.to_string()))
-                .or_insert(entry.hash);
+            match self.ids.get_mut(id) {
+                Some(slots) => slots.push(slot),
+                None => {
+                    self.ids.insert(id.to_string(), vec![slot]);
+                }
+            }
         }
         if let Some(run) = entry.body.run() {
             self.by_run.entry(run).or_default().push(slot);
@@ -323,11 +328,9 @@ impl Catalog {
                 .push(slot),
             _ => {}
         }
-        match self.kinds.get_mut(entry.kind.as_str()) {
-            Some(list) => list.push(slot),
-            None => {
-                self.kinds.insert(entry.kind.clone(), vec![slot]);
-            }
+        match self.kinds.iter_mut().find(|(kind, _)| *kind == entry.kind) {
+            Some((_, list)) => list.push(slot),
+            None => self.kinds.push((entry.kind.clone(), vec![slot])),
         }
         if let Some(earlier) = self.slots.insert(entry.hash, slot) {
             self.replaced.insert(earlier);
@@ -394,6 +397,11 @@ impl Catalog {
         Cow::Borrowed(&entry.body)
     }
 
+    /// Whether any correction is in the catalog (signed or not).
+    pub fn has_corrections(&self) -> bool {
+        !self.corrections.is_empty()
+    }
+
     /// Corrections of an entry, oldest first.
     pub fn corrections_of(&self, hash: &EntryHash) -> Vec<&CatalogEntry> {
         self.resolve_all(self.corrections.get(hash))
@@ -406,7 +414,12 @@ impl Catalog {
 
     /// The entry of `kind` with this id (the first recorded).
     pub fn find_id(&self, kind: &str, id: &str) -> Option<EntryHash> {
-        self.ids.get(&(kind.to_string(), id.to_string())).copied()
+        self.ids
+            .get(id)?
+            .iter()
+            .map(|slot| &self.entries[*slot])
+            .find(|entry| entry.kind == kind)
+            .map(|entry| entry.hash)
     }
 
     /// Entries that belong to a run, in sequence order.
@@ -418,11 +431,12 @@ impl Catalog {
     pub fn of_kind<'a>(&'a self, kind: &'a str) -> impl Iterator<Item = &'a CatalogEntry> + 'a {
         let mut list: Vec<&CatalogEntry> = self
             .kinds
-            .get(kind)
-            .map(Vec::as_slice)
+            .iter()
+            .find(|(name, _)| name == kind)
+            .map(|(_, slots)| slots.as_slice())
             .unwrap_or_default()
             .iter()
-            .filter(|slot| !self.replaced.contains(slot))
+            .filter(|slot| self.replaced.is_empty() || !self.replaced.contains(slot))
             .map(|slot| &*self.entries[*slot])
             .collect();
         // Entries are added in sequence order, so this only checks, unless a caller did not.

@@ -21,7 +21,7 @@ pub enum Dimension {
 }
 
 /// A unit a balance or burette displays.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 pub enum Unit {
     /// kilogram
     #[serde(rename = "kg")]

@@ -34,7 +34,8 @@ use assize_ledger::{
     Timestamp,
 };
 use chrono::NaiveDate;
-use std::collections::{BTreeMap, BTreeSet, HashMap, HashSet, VecDeque};
+use foldhash::{HashMap, HashMapExt, HashSet, HashSetExt};
+use std::collections::{BTreeMap, BTreeSet, VecDeque};
 use std::hash::{Hash, Hasher};
 use std::sync::mpsc::sync_channel;
 use std::sync::Arc;
@@ -185,10 +186,60 @@ struct BalanceRecords {
     /// read back by index when needed).
     checks: Vec<Shared>,
     /// The sequence number of every check by UTC day of observation (as recorded and as
-    /// corrected): a few bytes a check, the only thing kept of old checks.
-    checks_by_day: BTreeMap<NaiveDate, Vec<u64>>,
+    /// corrected): sixteen bytes a check, the only thing kept of old checks.
+    checks_by_day: CheckIndex,
     /// When each calibration among `entries` was performed, as recorded.
     performed: Vec<(NaiveDate, u64, EntryHash)>,
+    /// Sequence numbers of the checks that have a correction (every correction of a check
+    /// is filed here as it is walked), so an uncorrected old check is read back alone.
+    corrected_checks: HashSet<u64>,
+}
+
+/// Sequence numbers of routine checks by UTC day, as one sorted list of (day, sequence
+/// number) pairs: a check appears under the day it was observed and, once corrected, under the
+/// corrected day too.
+#[derive(Default)]
+struct CheckIndex {
+    pairs: Vec<(NaiveDate, u64)>,
+}
+
+impl CheckIndex {
+    /// Files `seq` under `day` (once).
+    fn insert(&mut self, day: NaiveDate, seq: u64) {
+        let pair = (day, seq);
+        // Checks mostly come in day order, so this is mostly a push.
+        if self.pairs.last().is_none_or(|last| *last < pair) {
+            self.pairs.push(pair);
+        } else if let Err(at) = self.pairs.binary_search(&pair) {
+            self.pairs.insert(at, pair);
+        }
+    }
+
+    /// The checks filed under `day`, in sequence order.
+    fn on(&self, day: NaiveDate) -> impl Iterator<Item = u64> + '_ {
+        let from = self.pairs.partition_point(|(d, _)| *d < day);
+        self.pairs[from..]
+            .iter()
+            .take_while(move |(d, _)| *d == day)
+            .map(|(_, seq)| *seq)
+    }
+
+    /// The days `seq` is filed under.
+    fn days_of(&self, seq: u64) -> Vec<NaiveDate> {
+        self.pairs
+            .iter()
+            .filter(|(_, s)| *s == seq)
+            .map(|(day, _)| *day)
+            .collect()
+    }
+
+    /// Every check filed, once each, in sequence order.
+    fn seqs(&self) -> Vec<u64> {
+        let mut seqs: Vec<u64> = self.pairs.iter().map(|(_, seq)| *seq).collect();
+        seqs.sort_unstable();
+        seqs.dedup();
+        seqs
+    }
 }
 
 impl BalanceRecords {
@@ -531,11 +582,7 @@ impl Stream {
         let balance = check.balance;
         let day = rules::day_of(check.observed_at);
         let records = self.balances.entry(balance).or_default();
-        records
-            .checks_by_day
-            .entry(day)
-            .or_default()
-            .push(entry.seq);
+        records.checks_by_day.insert(day, entry.seq);
         records.checks.push(entry);
         self.judge_again_on(balance, day);
         Ok(())
@@ -549,19 +596,12 @@ impl Stream {
         };
         let records = self.balances.entry(balance).or_default();
         records.checks.push(entry.clone());
-        let mut days: Vec<NaiveDate> = records
-            .checks_by_day
-            .iter()
-            .filter(|(_, seqs)| seqs.contains(&target_seq))
-            .map(|(day, _)| *day)
-            .collect();
+        records.corrected_checks.insert(target_seq);
+        let mut days: Vec<NaiveDate> = records.checks_by_day.days_of(target_seq);
         if let LabBody::Correction(c) = &entry.body {
             if let Ok(Some(LabBody::BalanceCheck(k))) = LabBody::decode(&c.kind, &c.replacement) {
                 let day = rules::day_of(k.observed_at);
-                let seqs = records.checks_by_day.entry(day).or_default();
-                if !seqs.contains(&target_seq) {
-                    seqs.push(target_seq);
-                }
+                records.checks_by_day.insert(day, target_seq);
                 days.push(day);
             }
         }
@@ -606,12 +646,9 @@ impl Stream {
         let Some(records) = self.balances.get(balance) else {
             return Ok(Vec::new());
         };
-        let Some(seqs) = records.checks_by_day.get(&day) else {
-            return Ok(Vec::new());
-        };
         let mut found = Vec::new();
-        for seq in seqs {
-            found.extend(self.check_with_corrections(records, *seq)?);
+        for seq in records.checks_by_day.on(day) {
+            found.extend(self.check_with_corrections(records, seq)?);
         }
         Ok(found)
     }
@@ -622,23 +659,31 @@ impl Stream {
         records: &BalanceRecords,
         seq: u64,
     ) -> Result<Vec<Shared>, LedgerError> {
-        if let Some(check) = records.checks.iter().find(|c| c.seq == seq) {
-            let hash = check.hash;
-            return Ok(records
-                .checks
-                .iter()
-                .filter(|c| {
-                    c.hash == hash
-                        || matches!(&c.body, LabBody::Correction(k) if k.supersedes == hash)
-                })
-                .cloned()
-                .collect());
+        // `checks` is in walk order, so by sequence number, and a correction comes after what
+        // it corrects.
+        if let Ok(at) = records.checks.binary_search_by_key(&seq, |c| c.seq) {
+            let check = &records.checks[at];
+            let mut found = vec![Arc::clone(check)];
+            if records.corrected_checks.contains(&seq) {
+                found.extend(
+                    records.checks[at + 1..]
+                        .iter()
+                        .filter(|c| {
+                            matches!(&c.body, LabBody::Correction(k) if k.supersedes == check.hash)
+                        })
+                        .cloned(),
+                );
+            }
+            return Ok(found);
         }
         let Some(entry) = self.store.entry(seq)? else {
             return Ok(Vec::new());
         };
         match Catalog::decode_entry(entry) {
-            Ok(Some(found)) => self.load_with_corrections(Arc::new(found)),
+            Ok(Some(found)) if records.corrected_checks.contains(&seq) => {
+                self.load_with_corrections(Arc::new(found))
+            }
+            Ok(Some(found)) => Ok(vec![Arc::new(found)]),
             _ => Ok(Vec::new()),
         }
     }
@@ -654,9 +699,7 @@ impl Stream {
         for balance in balances {
             let records = &self.balances[&balance];
             // Every check once, by its time of observation as corrected.
-            let mut seqs: Vec<u64> = records.checks_by_day.values().flatten().copied().collect();
-            seqs.sort_unstable();
-            seqs.dedup();
+            let seqs = records.checks_by_day.seqs();
             let mut order: Vec<(Timestamp, u64, EntryHash)> = Vec::new();
             for seq in seqs {
                 let entries = self.check_with_corrections(records, seq)?;
@@ -792,7 +835,7 @@ impl Stream {
         };
         let mut entries = vec![run_entry];
         let mut next = 0;
-        let mut seen: HashSet<EntryHash> = HashSet::from([*run]);
+        let mut seen: HashSet<EntryHash> = [*run].into_iter().collect();
         while next < entries.len() {
             let hash = entries[next].hash;
             next += 1;

@@ -13,8 +13,9 @@ use crate::records::{Balance, BalanceCheck, Calibration, Weighing};
 use assize_ledger::Record;
 use assize_ledger::{EntryHash, Timestamp};
 use chrono::NaiveDate;
+use foldhash::{HashMap, HashMapExt};
 use rust_decimal::Decimal;
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
 
 /// A routine check with its verdict.
 struct Check<'a> {

@@ -7,7 +7,7 @@ use crate::findings::{Code, Finding};
 use crate::records::{Portion, Replicate, RunKind, Source, Titration, Weighing};
 use assize_ledger::EntryHash;
 use assize_ledger::Record;
-use std::collections::HashSet;
+use foldhash::{HashSet, HashSetExt};
 
 /// Pushes the completeness findings of every run.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {

@@ -28,9 +28,10 @@ use crate::findings::{EntryRef, Finding};
 use crate::records::{DocumentKind, Replicate, Run, RunKind, Sample, SignOff, Weighing};
 use assize_ledger::Record;
 use assize_ledger::{EntryHash, Timestamp};
+use foldhash::{HashMap, HashMapExt};
 use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
-use std::collections::{BTreeSet, HashMap};
+use std::collections::BTreeSet;
 use std::str::FromStr;
 use std::sync::Arc;
 

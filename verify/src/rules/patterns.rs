@@ -5,25 +5,27 @@
 use super::{entry_ref, weighings_of, Evidence};
 use crate::catalog::CatalogEntry;
 use crate::findings::{Code, Finding};
+use crate::quantity::Unit;
 use crate::records::{Portion, Weighing};
 use assize_ledger::EntryHash;
-use std::collections::HashMap;
+use foldhash::{HashMap, HashMapExt};
 
 /// What makes two weighings look like the same observation: balance, both readings, unit.
-type Fingerprint = (EntryHash, String, String, String);
+type Fingerprint = (EntryHash, String, String, Unit);
 
-/// The fingerprint of a weighing.
-fn fingerprint(w: &Weighing) -> Fingerprint {
-    (
-        w.balance,
-        w.first.value.clone(),
-        w.second.value.clone(),
-        w.first.unit.to_string(),
-    )
+/// A [`Fingerprint`] borrowed from the weighing.
+type FingerprintRef<'a> = (EntryHash, &'a str, &'a str, Unit);
+
+/// The fingerprint of a weighing, borrowed from it.
+fn fingerprint(w: &Weighing) -> FingerprintRef<'_> {
+    (w.balance, &w.first.value, &w.second.value, w.first.unit)
 }
 
 /// Pushes the pattern findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
+    // Readings across runs are compared only over a whole catalog; a focused judgement leaves
+    // them to the caller (the streaming validation compares them across its horizon).
+    let across_runs = !evidence.focused();
     let mut seen: HashMap<Fingerprint, Vec<(usize, &CatalogEntry, Portion)>> = HashMap::new();
     for (index, run) in evidence.runs.iter().enumerate() {
         if evidence.focused() && !evidence.judges(run) {
@@ -31,15 +33,19 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
         }
         let weighings = weighings_of(evidence.catalog, run);
         // Identical readings between different replicates of the run.
-        let mut within: HashMap<(Portion, Fingerprint), Vec<(&CatalogEntry, u32)>> = HashMap::new();
+        let mut within: HashMap<(Portion, FingerprintRef<'_>), Vec<(&CatalogEntry, u32)>> =
+            HashMap::new();
         for (entry, w) in &weighings {
             within
                 .entry((w.portion, fingerprint(w)))
                 .or_default()
                 .push((entry, w.replicate));
-            seen.entry(fingerprint(w))
-                .or_default()
-                .push((index, entry, w.portion));
+            if across_runs {
+                let (balance, first, second, unit) = fingerprint(w);
+                seen.entry((balance, first.to_string(), second.to_string(), unit))
+                    .or_default()
+                    .push((index, entry, w.portion));
+            }
         }
         let mut groups: Vec<Vec<(&CatalogEntry, u32)>> = within
             .into_values()
@@ -67,7 +73,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
             );
         }
     }
-    if evidence.focused() {
+    if !across_runs {
         return;
     }
     let mut reused: Vec<Vec<(usize, &CatalogEntry, Portion)>> = seen

@@ -9,7 +9,7 @@ use crate::findings::{Code, Finding};
 use crate::records::{BalanceCheck, Source};
 use assize_ledger::Record;
 use assize_ledger::Timestamp;
-use std::collections::HashMap;
+use foldhash::{HashMap, HashMapExt};
 
 const MINUTE_MICROS: i64 = 60_000_000;
 
