@@ -35,6 +35,7 @@ use assize_ledger::{
 };
 use chrono::NaiveDate;
 use foldhash::{HashMap, HashMapExt, HashSet, HashSetExt};
+use std::borrow::Cow;
 use std::collections::{BTreeMap, BTreeSet, VecDeque};
 use std::hash::{Hash, Hasher};
 use std::sync::mpsc::sync_channel;
@@ -347,14 +348,18 @@ impl Stream {
             balance_of: HashMap::new(),
             materials: HashMap::new(),
             buckets: BTreeMap::new(),
-            owner: HashMap::new(),
+            // The two tables with steady turnover are made big enough up front that deleted
+            // slots never make them grow (a hash table grows when it is over half full of
+            // live entries and out of free slots): their size then depends on the window and
+            // the horizon, never on how long the ledger is.
+            owner: HashMap::with_capacity(2 * (options.window.min(1 << 20) as usize)),
             standardizations: VecDeque::new(),
             again: BTreeSet::new(),
             defects: Vec::new(),
             cross_run: Vec::new(),
             failing: BTreeMap::new(),
             runs_by_balance_day: BTreeMap::new(),
-            fingerprints: HashMap::new(),
+            fingerprints: HashMap::with_capacity(2 * options.fingerprint_horizon.min(1 << 22)),
             fingerprint_order: VecDeque::new(),
             reused: BTreeMap::new(),
             judged: BTreeMap::new(),
@@ -385,7 +390,11 @@ impl Stream {
         }
         if self.walked % self.options.window.clamp(1, 4096) == 0 {
             let horizon = self.walked.saturating_sub(self.options.window);
-            self.materials.retain(|_, m| m.last_used >= horizon);
+            // Rebuilt rather than thinned in place, for the same reason.
+            self.materials = std::mem::take(&mut self.materials)
+                .into_iter()
+                .filter(|(_, m)| m.last_used >= horizon)
+                .collect();
             // Checks are kept two windows, so the runs still being judged find theirs.
             let check_horizon = self.walked.saturating_sub(2 * self.options.window);
             for records in self.balances.values_mut() {
@@ -706,7 +715,7 @@ impl Stream {
                 let Some(hash) = entries.iter().find(|e| e.seq == seq).map(|e| e.hash) else {
                     continue;
                 };
-                if let Some(LabBody::BalanceCheck(c)) = current_body(&entries, &hash) {
+                if let Some(LabBody::BalanceCheck(c)) = current_body(&entries, &hash).as_deref() {
                     order.push((c.observed_at, seq, hash));
                 }
             }
@@ -906,7 +915,7 @@ impl Stream {
         entries: Vec<Shared>,
         first_time: bool,
     ) -> Result<(), LedgerError> {
-        let Some(LabBody::Run(body)) = current_body(&entries, &run) else {
+        let Some(LabBody::Run(body)) = current_body(&entries, &run).map(Cow::into_owned) else {
             return Ok(());
         };
         let is_standardization = body.kind == RunKind::Standardization;
@@ -920,7 +929,7 @@ impl Stream {
         let mut standardization = None;
         if let Some(std_hash) = body.standardization {
             let std_entries = self.standardization_entries(&std_hash)?;
-            if let Some(LabBody::Run(std_body)) = current_body(&std_entries, &std_hash) {
+            if let Some(LabBody::Run(std_body)) = current_body(&std_entries, &std_hash).as_deref() {
                 for hash in [
                     Some(std_body.titrant),
                     std_body.reference_lot,
@@ -945,7 +954,7 @@ impl Stream {
         // sensitivity term).
         let mut run_days = vec![rules::day_of(body.started_at)];
         if let Some(std_hash) = standardization {
-            if let Some(LabBody::Run(std_body)) = current_body(&all, &std_hash) {
+            if let Some(LabBody::Run(std_body)) = current_body(&all, &std_hash).as_deref() {
                 run_days.push(rules::day_of(std_body.started_at));
             }
         }
@@ -995,10 +1004,14 @@ impl Stream {
         let in_scope = self.in_scope(view.id(), view.sample_id());
         let run_seq = view.entry.seq;
         // Fingerprints of the run's weighings, for PAT-02.
-        let weighings: Vec<(EntryRef, Weighing)> = rules::weighings_of(&catalog, view)
-            .into_iter()
-            .map(|(e, w)| (entry_ref(e), w))
-            .collect();
+        let weighings: Vec<(EntryRef, (EntryHash, NaiveDate), u64)> =
+            rules::weighings_of(&catalog, view)
+                .into_iter()
+                .map(|(e, w)| {
+                    let balance_day = (w.balance, rules::day_of(w.first_at));
+                    (entry_ref(e), balance_day, fingerprint_key(&w))
+                })
+                .collect();
         let failing = if view.run.kind == RunKind::Assay {
             rules::out_of_spec::decision_of(&evidence, view)
                 .filter(|(decision, _): &(Decision, _)| !decision.conforms())
@@ -1045,13 +1058,12 @@ impl Stream {
                 self.failing.remove(&run_seq);
             }
         }
-        for (at, w) in weighings {
-            let key = (w.balance, rules::day_of(w.first_at));
-            let runs = self.runs_by_balance_day.entry(key).or_default();
+        for (at, balance_day, fingerprint) in weighings {
+            let runs = self.runs_by_balance_day.entry(balance_day).or_default();
             if !runs.contains(&run) {
                 runs.push(run);
             }
-            self.remember_fingerprint(run_seq, at, &w);
+            self.remember_fingerprint(run_seq, at, fingerprint);
         }
         self.forget_old_days();
         if let (Some(findings), Some(summary)) = (judged, summary) {
@@ -1090,17 +1102,9 @@ impl Stream {
             .retain(|(_, day), _| *day >= oldest_kept);
     }
 
-    /// Remembers a weighing's readings; a match from another run is a `PAT-02` candidate.
-    fn remember_fingerprint(&mut self, run_seq: u64, at: EntryRef, w: &Weighing) {
-        let mut hasher = std::collections::hash_map::DefaultHasher::new();
-        (
-            w.balance,
-            &w.first.value,
-            &w.second.value,
-            w.first.unit.to_string(),
-        )
-            .hash(&mut hasher);
-        let key = hasher.finish();
+    /// Remembers a weighing's readings by their [`fingerprint_key`]; a match from another run
+    /// is a `PAT-02` candidate.
+    fn remember_fingerprint(&mut self, run_seq: u64, at: EntryRef, key: u64) {
         match self.fingerprints.get(&key) {
             Some((earlier_run, earlier)) if *earlier_run != run_seq => {
                 let group = self.reused.entry(key).or_default();
@@ -1399,7 +1403,7 @@ impl Stream {
 }
 
 /// The body in force for `hash` among `entries` (its latest signed correction applied).
-fn current_body(entries: &[Shared], hash: &EntryHash) -> Option<LabBody> {
+fn current_body<'a>(entries: &'a [Shared], hash: &EntryHash) -> Option<Cow<'a, LabBody>> {
     let original = entries.iter().find(|e| e.hash == *hash)?;
     let corrected = entries
         .iter()
@@ -1410,5 +1414,19 @@ fn current_body(entries: &[Shared], hash: &EntryHash) -> Option<LabBody> {
         })
         .max_by_key(|(seq, _)| *seq)
         .and_then(|(_, c)| LabBody::decode(&c.kind, &c.replacement).ok().flatten());
-    Some(corrected.unwrap_or_else(|| original.body.clone()))
+    Some(corrected.map_or(Cow::Borrowed(&original.body), Cow::Owned))
+}
+
+/// What makes two weighings look like the same observation (balance, both readings, unit),
+/// as a 64-bit key with fixed hashing, so runs compare the same way on every machine.
+fn fingerprint_key(w: &Weighing) -> u64 {
+    let mut hasher = std::collections::hash_map::DefaultHasher::new();
+    (
+        w.balance,
+        &w.first.value,
+        &w.second.value,
+        w.first.unit.to_string(),
+    )
+        .hash(&mut hasher);
+    hasher.finish()
 }

@@ -15,6 +15,7 @@ use assize_ledger::{EntryHash, Timestamp};
 use chrono::NaiveDate;
 use foldhash::{HashMap, HashMapExt};
 use rust_decimal::Decimal;
+use std::borrow::Cow;
 use std::collections::BTreeMap;
 
 /// A routine check with its verdict.
@@ -29,14 +30,14 @@ struct Check<'a> {
 /// A calibration with its dates.
 struct Certificate<'a> {
     entry: &'a CatalogEntry,
-    calibration: Calibration,
+    calibration: Cow<'a, Calibration>,
     performed: NaiveDate,
     due: NaiveDate,
 }
 
 /// Everything recorded about the balances, indexed by balance entry.
 struct Balances<'a> {
-    balances: HashMap<EntryHash, Balance>,
+    balances: HashMap<EntryHash, Cow<'a, Balance>>,
     calibrations: HashMap<EntryHash, Vec<Certificate<'a>>>,
     checks: HashMap<EntryHash, Vec<Check<'a>>>,
 }
@@ -46,13 +47,24 @@ impl<'a> Balances<'a> {
         let catalog = evidence.catalog;
         let mut balances = HashMap::new();
         for e in catalog.of_kind(Balance::KIND) {
-            if let LabBody::Balance(b) = catalog.current_of(e).into_owned() {
-                balances.insert(e.hash, b);
+            match catalog.current_of(e) {
+                Cow::Borrowed(LabBody::Balance(b)) => {
+                    balances.insert(e.hash, Cow::Borrowed(b));
+                }
+                Cow::Owned(LabBody::Balance(b)) => {
+                    balances.insert(e.hash, Cow::Owned(b));
+                }
+                _ => {}
             }
         }
         let mut calibrations: HashMap<EntryHash, Vec<Certificate<'a>>> = HashMap::new();
         for e in catalog.of_kind(Calibration::KIND) {
-            if let LabBody::Calibration(c) = catalog.current_of(e).into_owned() {
+            let calibration = match catalog.current_of(e) {
+                Cow::Borrowed(LabBody::Calibration(c)) => Some(Cow::Borrowed(c)),
+                Cow::Owned(LabBody::Calibration(c)) => Some(Cow::Owned(c)),
+                _ => None,
+            };
+            if let Some(c) = calibration {
                 let date = |text: &str| NaiveDate::parse_from_str(text, "%Y-%m-%d").ok();
                 if let (Some(performed), Some(due)) = (date(&c.performed_on), date(&c.due_on)) {
                     calibrations
@@ -72,7 +84,8 @@ impl<'a> Balances<'a> {
         }
         let mut checks: HashMap<EntryHash, Vec<Check<'a>>> = HashMap::new();
         for e in catalog.of_kind(BalanceCheck::KIND) {
-            let LabBody::BalanceCheck(c) = catalog.current_of(e).into_owned() else {
+            let body = catalog.current_of(e);
+            let LabBody::BalanceCheck(c) = body.as_ref() else {
                 continue;
             };
             let tolerance = evidence
@@ -106,10 +119,30 @@ impl<'a> Balances<'a> {
     }
 
     fn name(&self, balance: &EntryHash) -> String {
-        self.balances.get(balance).map_or_else(
-            || format!("balance {balance}"),
-            |b| format!("balance {}", b.id),
-        )
+        self.named(balance).to_string()
+    }
+
+    /// The balance's name for a message, written only if a message is.
+    fn named<'b>(&'b self, balance: &'b EntryHash) -> BalanceName<'b> {
+        BalanceName {
+            balance,
+            record: self.balances.get(balance).map(|b| &**b),
+        }
+    }
+}
+
+/// "balance ID" (or the entry hash when the balance record is missing), as `Display`.
+struct BalanceName<'a> {
+    balance: &'a EntryHash,
+    record: Option<&'a Balance>,
+}
+
+impl std::fmt::Display for BalanceName<'_> {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self.record {
+            Some(b) => write!(f, "balance {}", b.id),
+            None => write!(f, "balance {}", self.balance),
+        }
     }
 }
 
@@ -134,7 +167,7 @@ fn fitness(
     out: &mut Vec<Finding>,
 ) {
     let Some(policy) = run.policy() else { return };
-    let name = balances.name(&weighing.balance);
+    let name = balances.named(&weighing.balance);
     let day = day_of(weighing.first_at);
     let finding = |code: Code, message: String, clause: String| {
         run.finding(Finding::new(code, message, clause))
@@ -146,10 +179,12 @@ fn fitness(
         .calibrations
         .get(&weighing.balance)
         .and_then(|list| list.iter().rev().find(|c| c.performed <= day));
-    let clause = format!(
-        "{}: balances.calibration_interval_days = {interval}",
-        run.policy_label()
-    );
+    let clause = || {
+        format!(
+            "{}: balances.calibration_interval_days = {interval}",
+            run.policy_label()
+        )
+    };
     match in_force {
         None => out.push(finding(
             Code::BalanceOutOfCalibration,
@@ -157,7 +192,7 @@ fn fitness(
                 "{name} has no calibration recorded on or before {day}, when entry {} was weighed",
                 entry.seq
             ),
-            clause,
+            clause(),
         )),
         Some(c) => {
             let problem = if !c.calibration.passed {
@@ -185,7 +220,7 @@ fn fitness(
                     finding(
                         Code::BalanceOutOfCalibration,
                         format!("{name} weighed entry {} on {day}, but {problem}", entry.seq),
-                        clause,
+                        clause(),
                     )
                     .involving([entry_ref(c.entry)]),
                 );
@@ -194,10 +229,12 @@ fn fitness(
     }
     // Routine check earlier the same day.
     if policy.balances.routine_check_each_day_of_use {
-        let clause = format!(
-            "{}: balances.routine_check_each_day_of_use = true",
-            run.policy_label()
-        );
+        let clause = || {
+            format!(
+                "{}: balances.routine_check_each_day_of_use = true",
+                run.policy_label()
+            )
+        };
         let last = balances.checks.get(&weighing.balance).and_then(|list| {
             list.iter()
                 .rev()
@@ -211,7 +248,7 @@ fn fitness(
                     entry.seq,
                     when(weighing.first_at)
                 ),
-                clause,
+                clause(),
             )),
             Some(c) if !c.passed => out.push(
                 finding(
@@ -220,7 +257,7 @@ fn fitness(
                         "{name}'s last check before entry {} failed ({} % off, tolerance {} %)",
                         entry.seq, c.deviation_percent, c.tolerance_percent
                     ),
-                    clause,
+                    clause(),
                 )
                 .involving([entry_ref(c.entry)]),
             ),

@@ -8,6 +8,7 @@ use crate::catalog::CatalogEntry;
 use crate::findings::{Code, Finding};
 use crate::records::{Portion, RunKind, Source, Weighing};
 use rust_decimal::Decimal;
+use std::borrow::Cow;
 
 /// Pushes the capture findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
@@ -57,7 +58,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
 /// Keyed and captured weighings of the same replicate and portion must show the same readings.
 fn keyed_against_captured(
     run: &RunView<'_>,
-    weighings: &[(&CatalogEntry, Weighing)],
+    weighings: &[(&CatalogEntry, Cow<'_, Weighing>)],
     out: &mut Vec<Finding>,
 ) {
     for (keyed_entry, keyed) in weighings.iter().filter(|(_, w)| w.source == Source::Keyed) {

@@ -31,6 +31,7 @@ use assize_ledger::{EntryHash, Timestamp};
 use foldhash::{HashMap, HashMapExt};
 use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
+use std::borrow::Cow;
 use std::collections::BTreeSet;
 use std::str::FromStr;
 use std::sync::Arc;
@@ -377,16 +378,18 @@ pub fn when(at: Timestamp) -> String {
     at.to_datetime().format("%Y-%m-%d %H:%M UTC").to_string()
 }
 
-/// Weighings of a run, current bodies, with their entries.
+/// Weighings of a run, current bodies (borrowed unless a correction replaced one), with their
+/// entries.
 pub fn weighings_of<'a>(
     catalog: &'a Catalog,
     run: &RunView<'a>,
-) -> Vec<(&'a CatalogEntry, Weighing)> {
+) -> Vec<(&'a CatalogEntry, Cow<'a, Weighing>)> {
     run.entries
         .iter()
         .filter(|e| e.kind == Weighing::KIND)
-        .filter_map(|e| match catalog.current_of(e).into_owned() {
-            LabBody::Weighing(w) => Some((*e, w)),
+        .filter_map(|e| match catalog.current_of(e) {
+            Cow::Borrowed(LabBody::Weighing(w)) => Some((*e, Cow::Borrowed(w))),
+            Cow::Owned(LabBody::Weighing(w)) => Some((*e, Cow::Owned(w))),
             _ => None,
         })
         .collect()
