@@ -25,7 +25,7 @@ use crate::assemble::{DocumentMemory, Recomputer};
 use crate::catalog::{Catalog, CatalogEntry, Defect, LabBody};
 use crate::conformance::Decision;
 use crate::findings::{sort, Code, EntryRef, Finding, Tally};
-use crate::records::{RunKind, Weighing};
+use crate::records::{Run, RunKind, Weighing};
 use crate::rules::{self, adopted_documents, entry_ref, integrity, Adopted, Evidence};
 use crate::validate::{summarize, RunSummary, Scope, ValidateError, Validation};
 use assize_ledger::store::Store;
@@ -58,6 +58,10 @@ pub struct StreamOptions {
     pub window: u64,
     /// Weighings whose readings are remembered for `PAT-02`.
     pub fingerprint_horizon: usize,
+    /// Runs judged together on one small catalog once they are all past the window (1 judges
+    /// each run on its own as soon as it is): what runs share (documents, materials, the
+    /// standardization, balance records) is then gathered once for all of them.
+    pub runs_per_judgement: usize,
 }
 
 impl Default for StreamOptions {
@@ -65,6 +69,7 @@ impl Default for StreamOptions {
         StreamOptions {
             window: 20_000,
             fingerprint_horizon: 32_768,
+            runs_per_judgement: 32,
         }
     }
 }
@@ -289,6 +294,20 @@ struct FailedCheck {
     since_seq: u64,
 }
 
+/// What judging one run leaves for the tables kept across runs.
+struct JudgedRun {
+    run: EntryHash,
+    run_seq: u64,
+    /// Each weighing's entry, balance and day, and reading fingerprint.
+    weighings: Vec<(EntryRef, (EntryHash, NaiveDate), u64)>,
+    /// The run, when its result does not conform.
+    failing: Option<Failing>,
+    /// Its findings and summary, when it is in scope.
+    judged: Option<(Vec<Finding>, RunSummary)>,
+    /// A standardization's own entries, kept for the assays that rely on it.
+    own_entries: Option<Vec<Shared>>,
+}
+
 /// A failing assay, for `OOS-02` at the end.
 struct Failing {
     run_seq: u64,
@@ -378,15 +397,14 @@ impl Stream {
             Ok(None) => {}
             Ok(Some(lab)) => self.file(Arc::new(lab))?,
         }
-        while let Some((&seq, _)) = self.buckets.first_key_value() {
-            if seq + self.options.window > self.walked {
+        let batch = self.options.runs_per_judgement.max(1);
+        while let Some(cutoff) = (self.walked + 1).checked_sub(self.options.window) {
+            // Buckets of runs with `seq + window <= walked`, once there are enough of them.
+            if self.buckets.range(..cutoff).take(batch).count() < batch {
                 break;
             }
-            let bucket = self.buckets.remove(&seq).expect("first key");
-            for e in &bucket.entries {
-                self.owner.remove(&e.hash);
-            }
-            self.judge_run(bucket.run, bucket.entries, true)?;
+            let due = self.take_buckets(batch);
+            self.judge_runs(due, true)?;
         }
         if self.walked % self.options.window.clamp(1, 4096) == 0 {
             let horizon = self.walked.saturating_sub(self.options.window);
@@ -908,26 +926,73 @@ impl Stream {
         }
     }
 
-    /// Judges one run from its entries and what they depend on.
-    fn judge_run(
+    /// The oldest `count` buckets (fewer if there are not that many), taken out with their
+    /// entries' owners, oldest first. Two runs with the same id are never put in one batch
+    /// (their findings are told apart by run id): the batch then stops before the second.
+    fn take_buckets(&mut self, count: usize) -> Vec<(EntryHash, Vec<Shared>)> {
+        let mut ids: Vec<String> = Vec::new();
+        let mut due = Vec::new();
+        while due.len() < count {
+            let Some(entry) = self.buckets.first_entry() else {
+                break;
+            };
+            let bucket = entry.get();
+            if let Some(LabBody::Run(body)) = current_body(&bucket.entries, &bucket.run).as_deref()
+            {
+                if ids.contains(&body.id) {
+                    break;
+                }
+                ids.push(body.id.clone());
+            }
+            let bucket = entry.remove();
+            for e in &bucket.entries {
+                self.owner.remove(&e.hash);
+            }
+            due.push((bucket.run, bucket.entries));
+        }
+        due
+    }
+
+    /// Judges runs, each from its entries, on one small catalog of them and what they depend
+    /// on (`first_time`: whether this is their first judgement).
+    fn judge_runs(
         &mut self,
-        run: EntryHash,
-        entries: Vec<Shared>,
+        batch: Vec<(EntryHash, Vec<Shared>)>,
         first_time: bool,
     ) -> Result<(), LedgerError> {
-        let Some(LabBody::Run(body)) = current_body(&entries, &run).map(Cow::into_owned) else {
+        let mut runs: Vec<(EntryHash, Run, Vec<Shared>)> = Vec::new();
+        for (run, entries) in batch {
+            if let Some(LabBody::Run(body)) = current_body(&entries, &run).map(Cow::into_owned) {
+                runs.push((run, body, entries));
+            }
+        }
+        if runs.is_empty() {
             return Ok(());
-        };
-        let is_standardization = body.kind == RunKind::Standardization;
-        let own_entries = if is_standardization {
-            entries.clone()
-        } else {
-            Vec::new()
-        };
-        let mut all = entries;
-        all.extend(self.adoptions.iter().cloned());
-        let mut standardization = None;
-        if let Some(std_hash) = body.standardization {
+        }
+        let mut all: Vec<Shared> = self.adoptions.clone();
+        // The days the runs started (the calibration in force then gives the budget's
+        // sensitivity term).
+        let mut run_days = Vec::new();
+        let mut standardizations: Vec<EntryHash> = Vec::new();
+        for (_, body, entries) in &runs {
+            all.extend(entries.iter().cloned());
+            run_days.push(rules::day_of(body.started_at));
+            for hash in [Some(body.titrant), body.reference_lot, body.sample]
+                .into_iter()
+                .flatten()
+            {
+                all.extend(self.material(&hash)?);
+            }
+            let Some(std_hash) = body.standardization else {
+                continue;
+            };
+            if standardizations.contains(&std_hash) {
+                continue;
+            }
+            standardizations.push(std_hash);
+            if runs.iter().any(|(hash, _, _)| *hash == std_hash) {
+                continue;
+            }
             let std_entries = self.standardization_entries(&std_hash)?;
             if let Some(LabBody::Run(std_body)) = current_body(&std_entries, &std_hash).as_deref() {
                 for hash in [
@@ -940,23 +1005,9 @@ impl Stream {
                 {
                     all.extend(self.material(&hash)?);
                 }
-            }
-            all.extend(std_entries.iter().cloned());
-            standardization = Some(std_hash);
-        }
-        for hash in [Some(body.titrant), body.reference_lot, body.sample]
-            .into_iter()
-            .flatten()
-        {
-            all.extend(self.material(&hash)?);
-        }
-        // The days the runs started (the calibration in force then gives the budget's
-        // sensitivity term).
-        let mut run_days = vec![rules::day_of(body.started_at)];
-        if let Some(std_hash) = standardization {
-            if let Some(LabBody::Run(std_body)) = current_body(&all, &std_hash).as_deref() {
                 run_days.push(rules::day_of(std_body.started_at));
             }
+            all.extend(std_entries.iter().cloned());
         }
         // Balances weighed on, with their calibrations and the checks on the days of use.
         // (Weighings as recorded and as corrected: either may name the balance and day.)
@@ -991,31 +1042,82 @@ impl Stream {
         let catalog = Catalog::from_shared(all);
         let memory = self.memory.take().unwrap_or_default();
         let mut recomputer = Recomputer::with_memory(&catalog, memory);
-        let mut recomputed = vec![(run, recomputer.run(run))];
-        if let Some(std_hash) = standardization {
-            recomputed.push((std_hash, recomputer.run(std_hash)));
+        let mut recomputed: Vec<(EntryHash, _)> = Vec::new();
+        for hash in runs
+            .iter()
+            .map(|(hash, _, _)| *hash)
+            .chain(standardizations.iter().copied())
+        {
+            if !recomputed.iter().any(|(done, _)| *done == hash) {
+                recomputed.push((hash, recomputer.run(hash)));
+            }
         }
         self.memory = Some(recomputer.into_memory());
-        let evidence =
-            Evidence::with_documents(&catalog, self.adopted.clone(), recomputed).focused_on(run);
-        let Some(view) = evidence.run(&run) else {
-            return Ok(());
-        };
-        let in_scope = self.in_scope(view.id(), view.sample_id());
-        let run_seq = view.entry.seq;
+        let evidence = Evidence::with_documents(&catalog, self.adopted.clone(), recomputed);
+        let in_scope: Vec<EntryHash> = runs
+            .iter()
+            .filter_map(|(hash, _, _)| evidence.run(hash))
+            .filter(|view| self.in_scope(view.id(), view.sample_id()))
+            .map(|view| view.entry.hash)
+            .collect();
+        let evidence = evidence.focused_on_runs(in_scope.clone());
+        // Every run's own findings, told apart by run id (unique within a batch).
+        let mut findings_by_run: HashMap<String, Vec<Finding>> = HashMap::new();
+        if !in_scope.is_empty() {
+            for finding in rules::evaluate(&evidence) {
+                if CROSS_RUN.contains(&finding.code) {
+                    continue;
+                }
+                if let Some(run_id) = &finding.run {
+                    findings_by_run
+                        .entry(run_id.clone())
+                        .or_default()
+                        .push(finding);
+                }
+            }
+        }
+        let mut judged_runs = Vec::new();
+        for (run, body, entries) in &runs {
+            let Some(view) = evidence.run(run) else {
+                continue;
+            };
+            let judged = in_scope.contains(run).then(|| {
+                let findings = findings_by_run.remove(view.id()).unwrap_or_default();
+                let summary = summarize(&evidence, view, &findings);
+                (findings, summary)
+            });
+            let own_entries = (body.kind == RunKind::Standardization).then(|| entries.clone());
+            judged_runs.push(self.run_judged(&catalog, &evidence, view, judged, own_entries));
+        }
+        drop(evidence);
+        for judged in judged_runs {
+            self.remember_judged(judged, first_time);
+        }
+        Ok(())
+    }
+
+    /// What one judged run leaves for the tables kept across runs.
+    fn run_judged(
+        &self,
+        catalog: &Catalog,
+        evidence: &Evidence<'_>,
+        view: &rules::RunView<'_>,
+        judged: Option<(Vec<Finding>, RunSummary)>,
+        own_entries: Option<Vec<Shared>>,
+    ) -> JudgedRun {
+        let run = view.entry.hash;
         // Fingerprints of the run's weighings, for PAT-02.
-        let weighings: Vec<(EntryRef, (EntryHash, NaiveDate), u64)> =
-            rules::weighings_of(&catalog, view)
-                .into_iter()
-                .map(|(e, w)| {
-                    let balance_day = (w.balance, rules::day_of(w.first_at));
-                    (entry_ref(e), balance_day, fingerprint_key(&w))
-                })
-                .collect();
+        let weighings = rules::weighings_of(catalog, view)
+            .into_iter()
+            .map(|(e, w)| {
+                let balance_day = (w.balance, rules::day_of(w.first_at));
+                (entry_ref(e), balance_day, fingerprint_key(&w))
+            })
+            .collect();
         let failing = if view.run.kind == RunKind::Assay {
-            rules::out_of_spec::decision_of(&evidence, view)
+            rules::out_of_spec::decision_of(evidence, view)
                 .filter(|(decision, _): &(Decision, _)| !decision.conforms())
-                .map(|(_, result)| {
+                .and_then(|(_, result)| {
                     let subjects: Vec<EntryHash> =
                         std::iter::once(run).chain(result.map(|r| r.hash)).collect();
                     let investigation_seq = catalog
@@ -1026,35 +1128,41 @@ impl Stream {
                         .map(|e| e.seq)
                         .min()
                         .unwrap_or(u64::MAX);
-                    (view.run.sample, view.id().to_string(), investigation_seq)
+                    Some(Failing {
+                        run_seq: view.entry.seq,
+                        run_id: view.id().to_string(),
+                        sample: view.run.sample?,
+                        investigation_seq,
+                    })
                 })
         } else {
             None
         };
-        let (judged, summary) = if in_scope {
-            let findings: Vec<Finding> = rules::evaluate(&evidence)
-                .into_iter()
-                .filter(|f| f.run.as_deref() == Some(view.id()) && !CROSS_RUN.contains(&f.code))
-                .collect();
-            let summary = summarize(&evidence, view, &findings);
-            (Some(findings), Some(summary))
-        } else {
-            (None, None)
-        };
-        drop(evidence);
+        JudgedRun {
+            run,
+            run_seq: view.entry.seq,
+            weighings,
+            failing,
+            judged,
+            own_entries,
+        }
+    }
+
+    /// Files what a judged run leaves into the tables kept across runs.
+    fn remember_judged(&mut self, judged_run: JudgedRun, first_time: bool) {
+        let JudgedRun {
+            run,
+            run_seq,
+            weighings,
+            failing,
+            judged,
+            own_entries,
+        } = judged_run;
         match failing {
-            Some((Some(sample), run_id, investigation_seq)) => {
-                self.failing.insert(
-                    run_seq,
-                    Failing {
-                        run_seq,
-                        run_id,
-                        sample,
-                        investigation_seq,
-                    },
-                );
+            Some(failing) => {
+                self.failing.insert(run_seq, failing);
             }
-            _ => {
+            None => {
                 self.failing.remove(&run_seq);
             }
         }
@@ -1066,7 +1174,7 @@ impl Stream {
             self.remember_fingerprint(run_seq, at, fingerprint);
         }
         self.forget_old_days();
-        if let (Some(findings), Some(summary)) = (judged, summary) {
+        if let Some((findings, summary)) = judged {
             self.scope_found = true;
             if first_time {
                 self.runs_checked += 1;
@@ -1077,7 +1185,7 @@ impl Stream {
                 self.judged.insert(run_seq, (findings, summary));
             }
         }
-        if is_standardization {
+        if let Some(own_entries) = own_entries {
             let kept = Arc::new(own_entries);
             self.standardizations.retain(|(h, _)| *h != run);
             self.standardizations.push_back((run, kept));
@@ -1085,7 +1193,6 @@ impl Stream {
                 self.standardizations.pop_front();
             }
         }
-        Ok(())
     }
 
     /// Keeps `runs_by_balance_day` to the most recent days: a check or calibration recorded
@@ -1130,8 +1237,9 @@ impl Stream {
 
     /// Judges what is left, then what came late, then the cross-run rules.
     fn finish(mut self) -> Result<Judged, LedgerError> {
-        while let Some((_, bucket)) = self.buckets.pop_first() {
-            self.judge_run(bucket.run, bucket.entries, true)?;
+        while !self.buckets.is_empty() {
+            let due = self.take_buckets(self.options.runs_per_judgement.max(1));
+            self.judge_runs(due, true)?;
         }
         self.owner.clear();
         // Late arrivals: the run again, and the assays relying on a standardization.
@@ -1151,7 +1259,7 @@ impl Stream {
         for (_, run) in ordered {
             self.standardizations.retain(|(h, _)| *h != run);
             let entries = self.load_run(&run)?;
-            self.judge_run(run, entries, false)?;
+            self.judge_runs(vec![(run, entries)], false)?;
         }
         let failed = self.judge_checks()?;
         self.failed_check_impact(failed)?;
@@ -1177,7 +1285,7 @@ impl Stream {
         self.keep_every_summary = true;
         for (_, run) in missing {
             let entries = self.load_run(&run)?;
-            self.judge_run(run, entries, false)?;
+            self.judge_runs(vec![(run, entries)], false)?;
         }
         let mut findings = std::mem::take(&mut self.cross_run);
         let mut runs = Vec::new();

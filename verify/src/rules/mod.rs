@@ -125,9 +125,9 @@ pub struct Evidence<'a> {
     /// One view per run, in sequence order.
     pub runs: Vec<RunView<'a>>,
     run_index: HashMap<EntryHash, usize>,
-    /// When set, the per-run rules judge only this run (the others are there to be looked
+    /// When set, the per-run rules judge only these runs (the others are there to be looked
     /// at, e.g. the standardization an assay relies on).
-    focus: Option<EntryHash>,
+    focus: Option<Vec<EntryHash>>,
 }
 
 impl<'a> Evidence<'a> {
@@ -213,27 +213,32 @@ impl<'a> Evidence<'a> {
     }
 
     /// The same evidence, with the per-run rules judging only the run at `run`.
-    pub fn focused_on(mut self, run: EntryHash) -> Evidence<'a> {
-        self.focus = Some(run);
+    pub fn focused_on(self, run: EntryHash) -> Evidence<'a> {
+        self.focused_on_runs(vec![run])
+    }
+
+    /// The same evidence, with the per-run rules judging only the runs at `runs`.
+    pub fn focused_on_runs(mut self, runs: Vec<EntryHash>) -> Evidence<'a> {
+        self.focus = Some(runs);
         self
     }
 
-    /// Whether the evidence is focused on one run (the rules that compare runs with each other
-    /// then stay silent: the streaming validation applies them on its own).
+    /// Whether the evidence is focused on some runs (the rules that compare runs with each
+    /// other then stay silent: the streaming validation applies them on its own).
     pub fn focused(&self) -> bool {
         self.focus.is_some()
     }
 
     /// Whether the per-run rules judge `run`.
     pub fn judges(&self, run: &RunView<'_>) -> bool {
-        self.focus.is_none_or(|f| f == run.entry.hash)
+        self.focus
+            .as_ref()
+            .is_none_or(|f| f.contains(&run.entry.hash))
     }
 
     /// The runs the per-run rules judge: every run, or the one in focus.
     pub fn judged_runs(&self) -> impl Iterator<Item = &RunView<'a>> + '_ {
-        self.runs
-            .iter()
-            .filter(move |r| self.focus.is_none_or(|f| f == r.entry.hash))
+        self.runs.iter().filter(move |r| self.judges(r))
     }
 
     /// The view of the run recorded at `hash`.

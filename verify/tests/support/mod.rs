@@ -1141,9 +1141,13 @@ pub fn validation(built: &Built) -> Validation {
         summaries(&streamed),
         "the run summaries differ"
     );
-    for window in [1, 3, 8, 21, 55] {
+    // Each run judged on its own at narrow windows, then runs judged a few at a time.
+    let narrow_windows = [1, 3, 8, 21, 55].map(|window| (window, 1));
+    for (window, runs_per_judgement) in narrow_windows.into_iter().chain([(1, 2), (5, 3), (13, 4)])
+    {
         let narrow = StreamOptions {
             window,
+            runs_per_judgement,
             ..StreamOptions::default()
         };
         let late = validate_streaming(
@@ -1154,7 +1158,11 @@ pub fn validation(built: &Built) -> Validation {
             &mut |_| {},
         )
         .expect("narrow streaming validation runs");
-        assert_eq!(comparable(&late), expected, "window {window} differs");
+        assert_eq!(
+            comparable(&late),
+            expected,
+            "window {window}, {runs_per_judgement} runs per judgement differs"
+        );
     }
     streamed
 }
@@ -1172,6 +1180,7 @@ pub fn agree_at_every_window(built: &Built) {
     for window in 1..=head {
         let narrow = StreamOptions {
             window,
+            runs_per_judgement: 1 + (window as usize % 3),
             ..StreamOptions::default()
         };
         let streamed = validate_streaming(
