@@ -75,5 +75,8 @@ fn hint_for(e: &LedgerError) -> &'static str {
         ClockBehind { .. } => "nothing was written; correct the system clock (UTC) before recording",
         UnknownReference { .. } => "refer only to entries already in this ledger (`assize entries list`)",
         NoSuchEntry { .. } => "`assize entries list` shows the sequence numbers in use",
+        TreeNotBuilt { .. } => {
+            "open the ledger for writing once (any command that records, e.g. `assize note`) to build its tree, then try again"
+        }
     }
 }

@@ -209,8 +209,12 @@ fn build_fixture(dir: &Path) {
     .expect("chmod");
     std::fs::copy(dir.join("fixture.ledger"), dir.join("newer.ledger")).expect("copy ledger");
     let conn = rusqlite::Connection::open(dir.join("newer.ledger")).expect("open copy");
-    conn.pragma_update(None, "user_version", 2)
-        .expect("bump schema version");
+    conn.pragma_update(
+        None,
+        "user_version",
+        assize_ledger::store::SCHEMA_VERSION + 1,
+    )
+    .expect("bump schema version");
     drop(conn);
     std::fs::write(
         dir.join("notes.txt"),

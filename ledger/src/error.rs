@@ -102,6 +102,12 @@ pub enum LedgerError {
         /// The sequence number asked for.
         seq: u64,
     },
+    /// The ledger file predates the merkle tree (schema version 1) and was opened read-only,
+    /// so its tree has not been built yet.
+    TreeNotBuilt {
+        /// Path of the ledger file.
+        path: PathBuf,
+    },
 }
 
 impl std::fmt::Display for LedgerError {
@@ -136,6 +142,11 @@ impl std::fmt::Display for LedgerError {
             ),
             UnknownReference { hash } => write!(f, "referenced entry {hash} is not in the ledger"),
             NoSuchEntry { seq } => write!(f, "no entry with sequence number {seq}"),
+            TreeNotBuilt { path } => write!(
+                f,
+                "{} has no merkle tree yet (schema version 1): open it read-write once, for example with any append, to build it",
+                path.display()
+            ),
         }
     }
 }

@@ -2,13 +2,16 @@
 //!
 //! Ties storage, the registry, kind rules and the clock together so that every append is judged
 //! by exactly the rules replay will later apply: an entry the registry would flag is refused
-//! before it is written, inside the same write transaction that reads the head.
+//! before it is written, inside the same write transaction that reads the head. Also hands out
+//! tree heads and inclusion and consistency proofs of the stored Merkle tree (sizes are entry
+//! counts; entry `seq` is leaf `seq - 1`).
 
 use crate::checkpoint::Checkpoint;
 use crate::clock::Clock;
 use crate::entry::Draft;
 use crate::error::Result;
 use crate::kinds::REGISTRY_KINDS;
+use crate::merkle::{self, TreeHead};
 use crate::records::{Enrolment, OpenLedger, Record};
 use crate::registry::{Registry, RegistryChange};
 use crate::replay::{replay, replay_observed, IntegrityReport, ReplayOptions};
@@ -219,6 +222,49 @@ impl Ledger {
         observe: &mut dyn FnMut(Entry),
     ) -> Result<IntegrityReport> {
         replay_observed(&self.store, &self.rules, options, observe)
+    }
+
+    /// The tree head of the first `size` entries (0 up to the head's sequence number): the
+    /// RFC 9162 root over their entry hashes.
+    pub fn tree_head(&self, size: u64) -> Result<TreeHead> {
+        self.check_tree_size(size)?;
+        let root = merkle::tree_root(&self.store, size)?;
+        Ok(TreeHead { size, root })
+    }
+
+    /// The inclusion proof of entry `seq` in the tree of the first `size` entries (RFC 9162
+    /// §2.1.3.1); check it with [`merkle::verify_inclusion`] at leaf index `seq - 1` with the
+    /// leaf hash of the entry hash.
+    pub fn inclusion_proof(&self, seq: u64, size: u64) -> Result<Vec<[u8; 32]>> {
+        self.check_tree_size(size)?;
+        if seq == 0 || seq > size {
+            return Err(LedgerError::BadInput {
+                what: "entry for an inclusion proof".into(),
+                reason: format!("entry {seq} is not among entries 1 to {size}"),
+            });
+        }
+        merkle::inclusion_proof(&self.store, seq - 1, size)
+    }
+
+    /// The consistency proof from the tree of the first `old_size` entries to the tree of the
+    /// first `new_size` (RFC 9162 §2.1.4.1); check it with [`merkle::verify_consistency`].
+    pub fn consistency_proof(&self, old_size: u64, new_size: u64) -> Result<Vec<[u8; 32]>> {
+        self.check_tree_size(new_size)?;
+        merkle::consistency_proof(&self.store, old_size, new_size)
+    }
+
+    /// Refuses a tree size beyond the head, or any tree look-up on a file whose tree was never
+    /// built.
+    fn check_tree_size(&self, size: u64) -> Result<()> {
+        self.store.require_tree()?;
+        let head_seq = self.head()?.map_or(0, |h| h.seq);
+        if size > head_seq {
+            return Err(LedgerError::BadInput {
+                what: "tree size".into(),
+                reason: format!("{size} is beyond the last entry {head_seq}"),
+            });
+        }
+        Ok(())
     }
 
     /// Signs a checkpoint of the current head.

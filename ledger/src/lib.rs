@@ -2,10 +2,12 @@
 //!
 //! This crate owns the entry envelope and its exact body bytes, the chain hash, signatures,
 //! encrypted key files, the registry of persons and keys (itself kept as ledger entries),
-//! SQLite storage with atomic durable appends, streaming integrity replay and signed
-//! checkpoints of the head. It knows nothing of chemistry: entry kinds other than its own
-//! are opaque strings whose signing rules the caller supplies through [`KindRules`].
-//! It never prints and never issues UPDATE or DELETE against stored entries.
+//! SQLite storage with atomic durable appends, an RFC 9162 Merkle tree over the entry hashes
+//! kept beside the chain (tree heads, inclusion and consistency proofs), streaming integrity
+//! replay and signed checkpoints of the head. It knows nothing of chemistry: entry kinds other
+//! than its own are opaque strings whose signing rules the caller supplies through
+//! [`KindRules`]. It never prints and never issues UPDATE or DELETE against stored entries or
+//! tree nodes.
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
 
@@ -18,6 +20,7 @@ pub mod hash;
 pub mod keyfile;
 pub mod kinds;
 pub mod ledger;
+pub mod merkle;
 pub mod records;
 pub mod registry;
 pub mod replay;
@@ -33,6 +36,7 @@ pub use hash::EntryHash;
 pub use keyfile::{KdfCost, KeyFileInfo};
 pub use kinds::{KindRule, KindRules, Role, RoleSet, SignatureRule};
 pub use ledger::{Ledger, OpenMode};
+pub use merkle::{MemoryTree, SubtreeSource, TreeHead};
 pub use records::Record;
 pub use registry::{AuthorityIssue, Person, Registry};
 pub use replay::{IntegrityReport, Problem, ReplayOptions};

@@ -7,16 +7,20 @@
 //! sense. Signatures of ordinary entries are verified in batches on worker threads while the
 //! walk goes on; registry entries are verified one by one before they change the registry.
 //! Anchors (checkpoints or their short codes) prove the ledger still extends what was seen
-//! before. Memory stays flat: one entry, one pending batch per worker and the registry.
+//! before. Beside the entries it reads the stored Merkle tree in order, one cursor per level:
+//! each leaf must be the leaf hash of its entry's stored hash and each interior node the hash
+//! of its two children, with no node beyond the last entry. Memory stays flat: one
+//! entry, one pending batch per worker, the registry, and one waiting node per tree level.
 
 use crate::checkpoint::{Checkpoint, CheckpointCode};
 use crate::kinds::REGISTRY_KINDS;
+use crate::merkle::{leaf_hash, node_hash};
 use crate::registry::{AuthorityIssue, Registry};
 use crate::signing::{failing_signatures, signed_message, verify_strict, SignatureJob};
-use crate::store::{Head, RowRead, Store};
+use crate::store::{Head, NodeScan, RowRead, Store, StoredNode};
 use crate::{Entry, EntryHash, KindRules, Timestamp};
 use serde::Serialize;
-use std::sync::mpsc::{channel, sync_channel, Receiver, Sender};
+use std::sync::mpsc::{channel, sync_channel, Receiver, Sender, SyncSender};
 use std::sync::{Arc, Mutex};
 
 /// Most problems kept in a report; the rest are only counted.
@@ -163,6 +167,21 @@ pub enum Problem {
         /// What is wrong.
         detail: String,
     },
+    /// A stored Merkle tree node that is not what the chain gives: a leaf that is not the leaf
+    /// hash of its entry's stored hash, an interior node that is the hash of neither its two
+    /// children as stored nor its two children as the chain gives them, a node missing, or a
+    /// node beyond the last entry.
+    TreeNodeMismatch {
+        /// Height above the leaves (0 for a leaf).
+        level: u32,
+        /// Position in its level; the node covers entries `index * 2^level + 1` onwards.
+        index: u64,
+        /// What the chain gives (where a gap hides that, the hash of the stored children), hex;
+        /// none for a node beyond the last entry.
+        expected: Option<String>,
+        /// What is stored, hex; none when the node is missing.
+        found: Option<String>,
+    },
 }
 
 impl Problem {
@@ -185,8 +204,21 @@ impl Problem {
             | AnchorSignatureInvalid { anchor_seq, .. }
             | AnchorHashDiffers { anchor_seq, .. } => Some(*anchor_seq),
             AnchorBeyondHead { head_seq, .. } => Some(*head_seq + 1),
+            TreeNodeMismatch { level, index, .. } => Some(first_seq_under(*level, *index)),
         }
     }
+}
+
+/// The first entry under the tree node at `level`, `index` (saturating for absurd positions).
+fn first_seq_under(level: u32, index: u64) -> u64 {
+    1u64.checked_shl(level)
+        .and_then(|width| index.checked_mul(width))
+        .map_or(u64::MAX, |first_leaf| first_leaf.saturating_add(1))
+}
+
+/// The first 16 hex digits of a hash as shown in a problem.
+fn short_hex(hex: &str) -> &str {
+    hex.get(..16).unwrap_or(hex)
 }
 
 impl std::fmt::Display for Problem {
@@ -239,6 +271,25 @@ impl std::fmt::Display for Problem {
             ),
             AnchorSignatureInvalid { anchor_seq, detail } => {
                 write!(f, "checkpoint at {anchor_seq}: {detail}")
+            }
+            TreeNodeMismatch { level, index, expected, found } => {
+                write!(f, "merkle tree node at level {level}, index {index}: ")?;
+                let source = if *level == 0 { "its entry's hash" } else { "the chain" };
+                match (expected, found) {
+                    (Some(e), Some(s)) => write!(
+                        f,
+                        "stored {} but {source} gives {}",
+                        short_hex(s),
+                        short_hex(e)
+                    ),
+                    (Some(e), None) => write!(f, "missing ({source} gives {})", short_hex(e)),
+                    (None, Some(s)) => write!(
+                        f,
+                        "stored {} beyond the last entry: the tree is longer than the chain",
+                        short_hex(s)
+                    ),
+                    (None, None) => write!(f, "does not match the chain"),
+                }
             }
         }
     }
@@ -336,23 +387,7 @@ pub fn replay_observed(
             scope.spawn(move || verify_batches(&receiver, &sender, strict));
         }
         drop(failure_sender);
-        let result = store.for_each_row(1, |row| {
-            let batch = match row {
-                RowRead::Entry(entry) => {
-                    let batch = walk.visit(&entry)?;
-                    observe(*entry);
-                    batch
-                }
-                RowRead::Malformed { seq, detail } => {
-                    walk.visit_malformed(seq, detail);
-                    None
-                }
-            };
-            if let Some(batch) = batch {
-                let _ = job_sender.send(batch);
-            }
-            Ok(true)
-        });
+        let result = read_rows(store, &mut walk, observe, &job_sender);
         if !walk.pending.is_empty() {
             let _ = job_sender.send(std::mem::take(&mut walk.pending));
         }
@@ -369,6 +404,270 @@ pub fn replay_observed(
         }
     }
     Ok(walk.finish(store.head()?))
+}
+
+/// Reads every stored row once, in order, judging each entry and (when the file has a tree)
+/// the tree nodes beside it.
+fn read_rows(
+    store: &Store,
+    walk: &mut Walk<'_>,
+    observe: &mut dyn FnMut(Entry),
+    jobs: &SyncSender<Vec<SignatureJob>>,
+) -> crate::error::Result<()> {
+    if !store.has_tree() {
+        return store.for_each_row(1, |row| visit_row(walk, observe, jobs, None, row));
+    }
+    // Every level a leaf index below 2^64 can reach, so the levels never depend on a head
+    // read apart from the walk's own snapshot; a cursor of an empty level costs one seek.
+    store.scan_tree_nodes(u64::BITS, |scan| {
+        let mut tree = TreeCheck::new(scan);
+        store.for_each_row(1, |row| {
+            visit_row(walk, observe, jobs, Some(&mut tree), row)
+        })?;
+        let leaves = walk.expected_seq - 1;
+        tree.finish(walk, leaves)
+    })
+}
+
+/// Judges one row (and its tree leaf), hands an entry to `observe` and a full signature batch
+/// to the workers.
+fn visit_row(
+    walk: &mut Walk<'_>,
+    observe: &mut dyn FnMut(Entry),
+    jobs: &SyncSender<Vec<SignatureJob>>,
+    tree: Option<&mut TreeCheck<'_, '_>>,
+    row: RowRead,
+) -> crate::error::Result<bool> {
+    let batch = match row {
+        RowRead::Entry(entry) => {
+            let batch = walk.visit(&entry)?;
+            if let Some(tree) = tree {
+                tree.leaf(walk, entry.seq, Some(&entry.hash))?;
+            }
+            observe(*entry);
+            batch
+        }
+        RowRead::Malformed { seq, detail } => {
+            walk.visit_malformed(seq, detail);
+            if let Some(tree) = tree {
+                tree.leaf(walk, seq, None)?;
+            }
+            None
+        }
+    };
+    if let Some(batch) = batch {
+        let _ = jobs.send(batch);
+    }
+    Ok(true)
+}
+
+/// The stored tree judged alongside the entries, one ordered cursor per level.
+///
+/// Each node carries two values up: the hash *stored* for it, and the hash *the chain gives*
+/// (from the leaf hashes of the entries' stored hashes). A leaf must equal what its entry
+/// gives (a stored hash that is not the hash of its entry is the chain's problem, reported
+/// there). An interior node must equal the hash of its two children, taken either as stored or
+/// as the chain gives them: so one altered node is reported where it is, once, not again at its
+/// parent, and by induction from the leaves a report with no tree problem means the stored
+/// tree is exactly the chain's. Leaves under a gap in the entries or under a malformed row
+/// cannot be judged; they are taken as stored, and nodes that cannot be worked out are passed
+/// over: the gap is reported as such.
+struct TreeCheck<'a, 's> {
+    scan: &'a mut NodeScan<'s>,
+    /// The next unread node of each level.
+    peeked: Vec<Option<StoredNode>>,
+    /// Per level, a left child (index, values) waiting for its right sibling.
+    waiting: Vec<Option<(u64, NodeValues)>>,
+}
+
+/// What is known of one node as the walk passes it.
+#[derive(Clone, Copy, Debug, Default)]
+struct NodeValues {
+    /// The stored hash, if stored and 32 bytes long.
+    stored: Option<[u8; 32]>,
+    /// The hash the chain gives, if it can be worked out.
+    chain: Option<[u8; 32]>,
+}
+
+impl<'a, 's> TreeCheck<'a, 's> {
+    fn new(scan: &'a mut NodeScan<'s>) -> Self {
+        let levels = scan.levels() as usize;
+        TreeCheck {
+            scan,
+            peeked: vec![None; levels],
+            waiting: vec![None; levels],
+        }
+    }
+
+    /// Judges the leaf of the entry row at `seq`; `entry_hash` is its stored hash, or `None`
+    /// for a row that does not form an entry.
+    fn leaf(
+        &mut self,
+        walk: &mut Walk<'_>,
+        seq: u64,
+        entry_hash: Option<&EntryHash>,
+    ) -> crate::error::Result<()> {
+        let Some(index) = seq.checked_sub(1) else {
+            return Ok(());
+        };
+        self.take_leaves_under_gap(walk, index)?;
+        let chain = entry_hash.map(|h| leaf_hash(&h.0));
+        self.place(walk, 0, index, chain, None)
+    }
+
+    /// Stored leaves before `index` not yet read belong to entries missing from the chain:
+    /// they are taken as stored so the nodes above them can still be judged.
+    fn take_leaves_under_gap(
+        &mut self,
+        walk: &mut Walk<'_>,
+        index: u64,
+    ) -> crate::error::Result<()> {
+        while let Some(node) = self.take_before(0, index)? {
+            if let Ok(stored_index) = u64::try_from(node.index) {
+                let values = NodeValues {
+                    stored: node.hash.try_into().ok(),
+                    chain: None,
+                };
+                self.settle(walk, 0, stored_index, values)?;
+            }
+        }
+        Ok(())
+    }
+
+    /// Judges the stored node at `level`, `index` against the hash the chain gives and the
+    /// hash of its stored children (whichever are known), then passes it on to its parent.
+    fn place(
+        &mut self,
+        walk: &mut Walk<'_>,
+        level: usize,
+        index: u64,
+        chain: Option<[u8; 32]>,
+        of_stored_children: Option<[u8; 32]>,
+    ) -> crate::error::Result<()> {
+        if level >= self.peeked.len() {
+            return Ok(());
+        }
+        let stored = self.take_at(level, index)?;
+        if let Some(expected) = chain.or(of_stored_children) {
+            let agrees = |value: Option<[u8; 32]>| {
+                value.is_some_and(|v| stored.as_deref() == Some(v.as_slice()))
+            };
+            if !agrees(chain) && !agrees(of_stored_children) {
+                walk.add(Problem::TreeNodeMismatch {
+                    level: level as u32,
+                    index,
+                    expected: Some(hex::encode(expected)),
+                    found: stored.as_ref().map(hex::encode),
+                });
+            }
+        }
+        let values = NodeValues {
+            stored: stored.and_then(|s| <[u8; 32]>::try_from(s).ok()),
+            chain,
+        };
+        self.settle(walk, level, index, values)
+    }
+
+    /// A node passed: a left child waits, a right child works out its parent.
+    fn settle(
+        &mut self,
+        walk: &mut Walk<'_>,
+        level: usize,
+        index: u64,
+        right: NodeValues,
+    ) -> crate::error::Result<()> {
+        if index % 2 == 0 {
+            self.waiting[level] = Some((index, right));
+            return Ok(());
+        }
+        let left = match self.waiting[level].take() {
+            Some((left_index, left)) if left_index + 1 == index => left,
+            _ => NodeValues::default(),
+        };
+        let chain = left.chain.zip(right.chain).map(|(l, r)| node_hash(&l, &r));
+        let as_chain = left.stored == left.chain && right.stored == right.chain;
+        let of_stored_children = if as_chain && chain.is_some() {
+            chain
+        } else {
+            left.stored
+                .zip(right.stored)
+                .map(|(l, r)| node_hash(&l, &r))
+        };
+        self.place(walk, level + 1, index / 2, chain, of_stored_children)
+    }
+
+    /// The stored hash at `level`, `index`; stored nodes before it (under a gap) are passed.
+    fn take_at(&mut self, level: usize, index: u64) -> crate::error::Result<Option<Vec<u8>>> {
+        while self.take_before(level, index)?.is_some() {}
+        let found = self.peek(level)?.is_some_and(|n| n.index == index as i64);
+        Ok(if found {
+            self.peeked[level].take().map(|n| n.hash)
+        } else {
+            None
+        })
+    }
+
+    /// Takes the next stored node of `level` if its index is below `index`.
+    fn take_before(
+        &mut self,
+        level: usize,
+        index: u64,
+    ) -> crate::error::Result<Option<StoredNode>> {
+        let before = self
+            .peek(level)?
+            .is_some_and(|n| u64::try_from(n.index).map_or(true, |i| i < index));
+        Ok(if before {
+            self.peeked[level].take()
+        } else {
+            None
+        })
+    }
+
+    fn peek(&mut self, level: usize) -> crate::error::Result<Option<&StoredNode>> {
+        if self.peeked[level].is_none() {
+            self.peeked[level] = self.scan.next(level as u32)?;
+        }
+        Ok(self.peeked[level].as_ref())
+    }
+
+    /// After the last entry: reports the first stored node that lies beyond the `leaves`
+    /// entries the chain holds (the rest are left uncounted; one is enough to show the tree is
+    /// longer than the chain).
+    fn finish(&mut self, walk: &mut Walk<'_>, leaves: u64) -> crate::error::Result<()> {
+        for level in 0..self.peeked.len() {
+            while let Some(node) = self.take_before(level, u64::MAX)? {
+                if !covers_only(&node, leaves) {
+                    walk.add(beyond_the_chain(node));
+                    return Ok(());
+                }
+            }
+        }
+        if let Some(node) = self.scan.next_above()? {
+            walk.add(beyond_the_chain(node));
+        }
+        Ok(())
+    }
+}
+
+/// Whether a stored node lies wholly under the first `leaves` leaves (negative positions are
+/// never read by a proof and are not judged).
+fn covers_only(node: &StoredNode, leaves: u64) -> bool {
+    let (Ok(level), Ok(index)) = (u32::try_from(node.level), u64::try_from(node.index)) else {
+        return true;
+    };
+    let end = index
+        .checked_add(1)
+        .and_then(|n| n.checked_mul(1u64.checked_shl(level)?));
+    end.is_some_and(|end| end <= leaves)
+}
+
+fn beyond_the_chain(node: StoredNode) -> Problem {
+    Problem::TreeNodeMismatch {
+        level: u32::try_from(node.level).unwrap_or(u32::MAX),
+        index: u64::try_from(node.index).unwrap_or(u64::MAX),
+        expected: None,
+        found: Some(hex::encode(node.hash)),
+    }
 }
 
 fn verify_batches(

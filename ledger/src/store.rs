@@ -5,8 +5,15 @@
 //! sequence number is not the next one (which also stops `INSERT OR REPLACE`). Reads stream row
 //! by row so memory does not grow with the ledger. The triggers are a guard only: the chain is
 //! what makes tampering visible.
+//!
+//! It also owns the table of the RFC 9162 tree's perfect subtree roots (`merkle_nodes`, see
+//! `merkle`): each append inserts, in its own transaction, the new leaf and every subtree it
+//! completes; the same kind of triggers guard it. A schema-1 file (no tree) opened read-write
+//! is given its tree in one transaction; opened read-only it still reads and replays, and tree
+//! look-ups report that the tree is not built. This module computes no tree hash itself.
 
 use crate::error::{storage, Result};
+use crate::merkle::{self, PerfectNode, SubtreeSource};
 use crate::{Entry, EntryHash, LedgerError, PublicKey, Timestamp};
 use rusqlite::config::DbConfig;
 use rusqlite::{params, Connection, OpenFlags, OptionalExtension, Row, TransactionBehavior};
@@ -15,8 +22,11 @@ use std::time::Duration;
 
 /// `PRAGMA application_id` of an assize ledger ("ASZ1").
 pub const APPLICATION_ID: i32 = 0x4153_5A31;
-/// Schema version this build writes and reads.
-pub const SCHEMA_VERSION: i64 = 1;
+/// Schema version this build writes and reads (2: entries and the tree's node table; files of
+/// version 1, entries only, are still read and are upgraded when opened read-write).
+pub const SCHEMA_VERSION: i64 = 2;
+/// The first schema version with the `merkle_nodes` table.
+const TREE_SCHEMA_VERSION: i64 = 2;
 /// How long a writer waits for another process's append to finish.
 const BUSY_TIMEOUT: Duration = Duration::from_secs(60);
 
@@ -54,6 +64,24 @@ CREATE TRIGGER entry_refs_refuse_delete BEFORE DELETE ON entry_refs
 BEGIN SELECT RAISE(ABORT, 'assize entries are append-only: DELETE refused'); END;
 ";
 
+/// The tree's perfect subtree roots (level 0: leaf hashes), and their guards: no UPDATE, no
+/// DELETE, and no insert over a node already stored (which would replace it).
+const TREE_SCHEMA: &str = "
+CREATE TABLE merkle_nodes (
+    level INTEGER NOT NULL,
+    idx   INTEGER NOT NULL,
+    hash  BLOB    NOT NULL,
+    PRIMARY KEY (level, idx)
+) WITHOUT ROWID;
+CREATE TRIGGER merkle_nodes_refuse_update BEFORE UPDATE ON merkle_nodes
+BEGIN SELECT RAISE(ABORT, 'assize tree nodes are append-only: UPDATE refused'); END;
+CREATE TRIGGER merkle_nodes_refuse_delete BEFORE DELETE ON merkle_nodes
+BEGIN SELECT RAISE(ABORT, 'assize tree nodes are append-only: DELETE refused'); END;
+CREATE TRIGGER merkle_nodes_refuse_replace BEFORE INSERT ON merkle_nodes
+WHEN EXISTS (SELECT 1 FROM merkle_nodes WHERE level = NEW.level AND idx = NEW.idx)
+BEGIN SELECT RAISE(ABORT, 'assize tree nodes are append-only: a stored node may not be replaced'); END;
+";
+
 const ENTRY_COLUMNS: &str =
     "seq, hash, prev_hash, record_time, author, kind, refs, body, signer, signature";
 
@@ -81,6 +109,8 @@ pub enum OpenMode {
 pub struct Store {
     conn: Connection,
     path: PathBuf,
+    /// The file holds the tree's node table (schema version 2 or later).
+    has_tree: bool,
 }
 
 impl Store {
@@ -105,7 +135,7 @@ impl Store {
         }
         let setup = format!(
             "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = {SCHEMA_VERSION};
-             BEGIN; {SCHEMA} COMMIT;"
+             BEGIN; {SCHEMA} {TREE_SCHEMA} COMMIT;"
         );
         conn.execute_batch(&setup)
             .map_err(storage("writing the schema"))?;
@@ -113,6 +143,7 @@ impl Store {
         Ok(Store {
             conn,
             path: path.into(),
+            has_tree: true,
         })
     }
 
@@ -158,10 +189,38 @@ impl Store {
             });
         }
         Self::configure(&conn)?;
-        Ok(Store {
+        let mut store = Store {
             conn,
             path: path.into(),
-        })
+            has_tree: version >= TREE_SCHEMA_VERSION,
+        };
+        if !store.has_tree && mode == OpenMode::ReadWrite {
+            store.build_tree()?;
+        }
+        Ok(store)
+    }
+
+    /// Upgrades a schema-1 file: creates the node table and its guards and fills it from the
+    /// stored entries in order, all in one write transaction (another process may have done it
+    /// first, which is then left as it is).
+    fn build_tree(&mut self) -> Result<()> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(storage("starting to build the tree"))?;
+        let version: i64 = tx
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .map_err(storage("reading the schema version"))?;
+        if version < TREE_SCHEMA_VERSION {
+            tx.execute_batch(TREE_SCHEMA)
+                .map_err(storage("creating the tree table"))?;
+            fill_tree(&tx)?;
+            tx.execute_batch(&format!("PRAGMA user_version = {SCHEMA_VERSION}"))
+                .map_err(storage("writing the schema version"))?;
+        }
+        tx.commit().map_err(storage("committing the tree"))?;
+        self.has_tree = true;
+        Ok(())
     }
 
     fn configure(conn: &Connection) -> Result<()> {
@@ -181,6 +240,60 @@ impl Store {
     /// Path of the ledger file.
     pub fn path(&self) -> &Path {
         &self.path
+    }
+
+    /// Whether the file holds the tree (false only for a schema-1 file opened read-only).
+    pub fn has_tree(&self) -> bool {
+        self.has_tree
+    }
+
+    /// Refuses tree look-ups on a file whose tree was never built.
+    pub(crate) fn require_tree(&self) -> Result<()> {
+        if self.has_tree {
+            Ok(())
+        } else {
+            Err(LedgerError::TreeNotBuilt {
+                path: self.path.clone(),
+            })
+        }
+    }
+
+    /// Streams the stored tree nodes for replay, in order, one cursor per level below `levels`
+    /// (each ordered by index) and one for any row at or above `levels`, all read alongside
+    /// whatever `visit` reads from this connection.
+    pub(crate) fn scan_tree_nodes<R>(
+        &self,
+        levels: u32,
+        visit: impl FnOnce(&mut NodeScan<'_>) -> Result<R>,
+    ) -> Result<R> {
+        self.require_tree()?;
+        let read = |e: rusqlite::Error| storage("reading tree nodes")(e);
+        let mut per_level = (0..levels)
+            .map(|_| {
+                self.conn.prepare(
+                    "SELECT level, idx, hash FROM merkle_nodes WHERE level = ?1 ORDER BY idx",
+                )
+            })
+            .collect::<rusqlite::Result<Vec<_>>>()
+            .map_err(read)?;
+        let mut above = self
+            .conn
+            .prepare(
+                "SELECT level, idx, hash FROM merkle_nodes WHERE level >= ?1 ORDER BY level, idx",
+            )
+            .map_err(read)?;
+        let level_rows = per_level
+            .iter_mut()
+            .zip(0i64..)
+            .map(|(statement, level)| statement.query([level]))
+            .collect::<rusqlite::Result<Vec<_>>>()
+            .map_err(read)?;
+        let above_rows = above.query([i64::from(levels)]).map_err(read)?;
+        let mut scan = NodeScan {
+            levels: level_rows,
+            above: above_rows,
+        };
+        visit(&mut scan)
     }
 
     /// The last entry, if any.
@@ -295,6 +408,60 @@ impl Store {
         entries_of_kinds_after(&self.conn, kinds, after_seq)
     }
 
+    /// Sequence numbers of the entries of `kind` that name `target`, oldest first. It walks
+    /// the entries of that kind and looks each up in the reference index, so it is quick for
+    /// rare kinds (corrections) whatever else names the target (a balance is named by every
+    /// weighing on it).
+    pub fn of_kind_naming(&self, kind: &str, target: &EntryHash) -> Result<Vec<u64>> {
+        let mut statement = self
+            .conn
+            .prepare_cached(
+                "SELECT e.seq FROM entries AS e INDEXED BY entries_by_kind
+                 WHERE e.kind = ?1
+                   AND EXISTS (SELECT 1 FROM entry_refs AS r WHERE r.target = ?2 AND r.seq = e.seq)
+                 ORDER BY e.seq",
+            )
+            .map_err(storage("finding references of a kind"))?;
+        let rows = statement
+            .query_map(params![kind, target.0.as_slice()], |r| r.get::<_, i64>(0))
+            .map_err(storage("finding references of a kind"))?;
+        rows.map(|r| r.map(|s| s as u64))
+            .collect::<rusqlite::Result<Vec<_>>>()
+            .map_err(storage("finding references of a kind"))
+    }
+
+    /// Entries of one kind with `after_seq < seq < before_seq`, oldest first, at most
+    /// `limit`, through the kind index (it never reads entries of other kinds).
+    pub fn of_kind_between(
+        &self,
+        kind: &str,
+        after_seq: u64,
+        before_seq: u64,
+        limit: usize,
+    ) -> Result<Vec<Entry>> {
+        let sql = format!(
+            "SELECT {ENTRY_COLUMNS} FROM entries INDEXED BY entries_by_kind
+             WHERE kind = ?1 AND seq > ?2 AND seq < ?3 ORDER BY seq LIMIT ?4"
+        );
+        let mut statement = self
+            .conn
+            .prepare_cached(&sql)
+            .map_err(storage("reading entries of a kind"))?;
+        let rows = statement
+            .query_map(
+                params![
+                    kind,
+                    after_seq.min(i64::MAX as u64) as i64,
+                    before_seq.min(i64::MAX as u64) as i64,
+                    limit.min(i64::MAX as usize) as i64
+                ],
+                row_to_entry,
+            )
+            .map_err(storage("reading entries of a kind"))?;
+        rows.collect::<rusqlite::Result<Vec<_>>>()
+            .map_err(storage("reading entries of a kind"))
+    }
+
     /// Starts an append: takes the write lock (`BEGIN IMMEDIATE`) until commit or drop.
     pub fn begin_append(&mut self) -> Result<AppendTx<'_>> {
         let tx = self
@@ -303,6 +470,66 @@ impl Store {
             .map_err(storage("starting an append"))?;
         Ok(AppendTx { tx })
     }
+}
+
+impl SubtreeSource for Store {
+    fn perfect_root(&self, level: u32, index: u64) -> Result<[u8; 32]> {
+        self.require_tree()?;
+        read_node(&self.conn, level, index)
+    }
+}
+
+/// One stored tree node as a scan reads it, unjudged (its hash may not be 32 bytes).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub(crate) struct StoredNode {
+    /// Level as stored.
+    pub level: i64,
+    /// Index as stored.
+    pub index: i64,
+    /// Hash bytes as stored.
+    pub hash: Vec<u8>,
+}
+
+/// Ordered cursors over the node table (see [`Store::scan_tree_nodes`]).
+pub(crate) struct NodeScan<'s> {
+    levels: Vec<rusqlite::Rows<'s>>,
+    above: rusqlite::Rows<'s>,
+}
+
+impl NodeScan<'_> {
+    /// Number of levels with a cursor of their own.
+    pub(crate) fn levels(&self) -> u32 {
+        self.levels.len() as u32
+    }
+
+    /// The next stored node of `level` (by index), if any.
+    pub(crate) fn next(&mut self, level: u32) -> Result<Option<StoredNode>> {
+        match self.levels.get_mut(level as usize) {
+            Some(rows) => next_node(rows),
+            None => Ok(None),
+        }
+    }
+
+    /// The next stored node at a level without a cursor of its own.
+    pub(crate) fn next_above(&mut self) -> Result<Option<StoredNode>> {
+        next_node(&mut self.above)
+    }
+}
+
+fn next_node(rows: &mut rusqlite::Rows<'_>) -> Result<Option<StoredNode>> {
+    let read = |e: rusqlite::Error| storage("reading tree nodes")(e);
+    let Some(row) = rows.next().map_err(read)? else {
+        return Ok(None);
+    };
+    let hash = match row.get_ref(2).map_err(read)? {
+        rusqlite::types::ValueRef::Blob(b) | rusqlite::types::ValueRef::Text(b) => b.to_vec(),
+        _ => Vec::new(),
+    };
+    Ok(Some(StoredNode {
+        level: row.get(0).map_err(read)?,
+        index: row.get(1).map_err(read)?,
+        hash,
+    }))
 }
 
 /// One row as read by [`Store::for_each_row`].
@@ -335,6 +562,13 @@ pub struct AppendTx<'a> {
     tx: rusqlite::Transaction<'a>,
 }
 
+/// The stored tree under the write lock: what the next leaf's left siblings are read from.
+impl SubtreeSource for AppendTx<'_> {
+    fn perfect_root(&self, level: u32, index: u64) -> Result<[u8; 32]> {
+        read_node(&self.tx, level, index)
+    }
+}
+
 impl AppendTx<'_> {
     /// The head as seen under the write lock.
     pub fn head(&self) -> Result<Option<Head>> {
@@ -360,7 +594,8 @@ impl AppendTx<'_> {
         entries_of_kinds_after(&self.tx, kinds, after_seq)
     }
 
-    /// Inserts the entry and its reference index rows.
+    /// Inserts the entry, its reference index rows, and its leaf with every tree node the leaf
+    /// completes.
     pub fn insert(&self, entry: &Entry) -> Result<()> {
         let refs: Vec<u8> = entry.references.iter().flat_map(|r| r.0).collect();
         self.tx
@@ -391,7 +626,7 @@ impl AppendTx<'_> {
                 .and_then(|mut s| s.execute(params![target.0.as_slice(), entry.seq as i64]))
                 .map_err(storage("indexing references"))?;
         }
-        Ok(())
+        insert_leaf(&self.tx, self, entry.seq, &entry.hash)
     }
 
     /// Makes the append durable.
@@ -413,6 +648,87 @@ fn read_head(conn: &Connection) -> Result<Option<Head>> {
             .optional()
         })
         .map_err(storage("reading the head"))
+}
+
+/// Inserts the leaf of entry `seq` and the nodes it completes, reading left siblings from
+/// `source` (the same connection).
+fn insert_leaf(
+    conn: &Connection,
+    source: &impl SubtreeSource,
+    seq: u64,
+    hash: &EntryHash,
+) -> Result<()> {
+    let leaf_index = seq.checked_sub(1).ok_or_else(|| LedgerError::BadInput {
+        what: "sequence number".into(),
+        reason: "entries are numbered from 1".into(),
+    })?;
+    for node in merkle::nodes_completed_by(source, leaf_index, merkle::leaf_hash(&hash.0))? {
+        insert_node(conn, &node)?;
+    }
+    Ok(())
+}
+
+fn insert_node(conn: &Connection, node: &PerfectNode) -> Result<()> {
+    conn.prepare_cached("INSERT INTO merkle_nodes (level, idx, hash) VALUES (?1, ?2, ?3)")
+        .and_then(|mut s| {
+            s.execute(params![
+                i64::from(node.level),
+                node.index as i64,
+                node.hash.as_slice()
+            ])
+        })
+        .map(|_| ())
+        .map_err(storage("inserting a tree node"))
+}
+
+fn read_node(conn: &Connection, level: u32, index: u64) -> Result<[u8; 32]> {
+    let stored: Option<Vec<u8>> = conn
+        .prepare_cached("SELECT hash FROM merkle_nodes WHERE level = ?1 AND idx = ?2")
+        .and_then(|mut s| {
+            s.query_row(params![i64::from(level), index as i64], |r| r.get(0))
+                .optional()
+        })
+        .map_err(storage("reading a tree node"))?;
+    let stored = stored.ok_or_else(|| merkle::missing_node(level, index))?;
+    stored.try_into().map_err(|_| LedgerError::Codec {
+        what: format!("merkle tree node at level {level}, index {index}"),
+        reason: "the stored hash is not 32 bytes".into(),
+    })
+}
+
+/// The tree read from the node table under construction (for [`fill_tree`]).
+struct NodeReader<'c>(&'c Connection);
+
+impl SubtreeSource for NodeReader<'_> {
+    fn perfect_root(&self, level: u32, index: u64) -> Result<[u8; 32]> {
+        read_node(self.0, level, index)
+    }
+}
+
+/// Fills an empty node table from the stored entry hashes, in sequence order; refuses when
+/// entries are missing, since leaf `seq - 1` must be entry `seq`.
+fn fill_tree(conn: &Connection) -> Result<()> {
+    let read = |e: rusqlite::Error| storage("reading entries to build the tree")(e);
+    let mut statement = conn
+        .prepare("SELECT seq, hash FROM entries ORDER BY seq")
+        .map_err(read)?;
+    let mut rows = statement.query([]).map_err(read)?;
+    let reader = NodeReader(conn);
+    let mut expected_seq = 1u64;
+    while let Some(row) = rows.next().map_err(read)? {
+        let seq = row.get::<_, i64>(0).map_err(read)? as u64;
+        if seq != expected_seq {
+            return Err(LedgerError::Refused {
+                reason: format!(
+                    "cannot build the merkle tree: entry {expected_seq} is missing (the next stored entry is {seq}); replay the ledger to see what is wrong"
+                ),
+            });
+        }
+        let hash = hash_column(row, 1).map_err(read)?;
+        insert_leaf(conn, &reader, seq, &hash)?;
+        expected_seq += 1;
+    }
+    Ok(())
 }
 
 fn entries_of_kinds_after(conn: &Connection, kinds: &[&str], after_seq: u64) -> Result<Vec<Entry>> {

@@ -6,17 +6,22 @@
 //! the private keys of the people enrolled, unless a case says otherwise. Attacks that need
 //! UPDATE or DELETE first drop the guard triggers and put them back afterwards, so the schema
 //! looks untouched: the chain, the signatures and checkpoints kept outside the file are what
-//! must catch them. This file is therefore the one place outside `store.rs` that writes SQL
-//! against the entries table, on purpose.
+//! must catch them. The attacker also keeps the Merkle tree's node table in step with what they
+//! changed (it is derived from the stored entry hashes and holds no secret), so the tree never
+//! gives an attack away here; `tests/merkle.rs` shows what replay finds when it is left behind.
+//! This file is therefore the one place outside `store.rs` that writes SQL against the entries
+//! table, on purpose.
 
+use assize_ledger::merkle::{leaf_hash, node_hash};
 use assize_ledger::records::{AddKey, ChangeRole, Enrolment, Note, RevokeKey};
 use assize_ledger::registry::AuthorityIssue;
 use assize_ledger::replay::Anchor;
 use assize_ledger::{
-    Checkpoint, Draft, Entry, EntryHash, FixedClock, IntegrityReport, KindRules, Ledger, OpenMode,
-    Problem, Record, ReplayOptions, Role, Signer, Timestamp,
+    Checkpoint, Draft, Entry, EntryHash, FixedClock, IntegrityReport, KindRules, Ledger,
+    MemoryTree, OpenMode, Problem, Record, ReplayOptions, Role, Signer, Timestamp,
 };
 use rusqlite::{params, Connection};
+use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 use tempfile::TempDir;
@@ -191,7 +196,8 @@ fn copy_ledger(from: &Path, to: &Path) {
 // The attacker's tools: plain SQLite on the closed file.
 // ---------------------------------------------------------------------------------------------
 
-/// Drops every guard trigger, runs `attack`, then recreates the triggers exactly as they were.
+/// Drops every guard trigger, runs `attack`, brings the tree in step with the altered entries,
+/// then recreates the triggers exactly as they were.
 fn tamper(path: &Path, attack: impl FnOnce(&Connection) -> rusqlite::Result<()>) {
     let conn = Connection::open(path).expect("open ledger file with SQLite");
     let triggers: Vec<(String, String)> = conn
@@ -207,9 +213,41 @@ fn tamper(path: &Path, attack: impl FnOnce(&Connection) -> rusqlite::Result<()>)
             .expect("drop trigger");
     }
     attack(&conn).expect("attack runs");
+    rebuild_tree(&conn).expect("tree rebuilt");
     for (_, sql) in &triggers {
         conn.execute_batch(sql).expect("recreate trigger");
     }
+}
+
+/// Rewrites the tree's node table from the stored entry hashes (leaf `seq - 1` = RFC 9162 leaf
+/// hash of entry `seq`'s stored hash), as an attacker who altered entries would. A node is
+/// written only when both its children are, so a gap in the entries leaves a hole above it.
+fn rebuild_tree(conn: &Connection) -> rusqlite::Result<()> {
+    conn.execute("DELETE FROM merkle_nodes", [])?;
+    let mut level_nodes: BTreeMap<u64, [u8; 32]> = conn
+        .prepare("SELECT seq, hash FROM entries ORDER BY seq")?
+        .query_map([], |r| Ok((r.get::<_, i64>(0)?, r.get::<_, Vec<u8>>(1)?)))?
+        .map(|row| row.map(|(seq, hash)| (seq as u64 - 1, leaf_hash(&hash))))
+        .collect::<rusqlite::Result<_>>()?;
+    let mut level = 0i64;
+    while !level_nodes.is_empty() {
+        for (index, hash) in &level_nodes {
+            conn.execute(
+                "INSERT INTO merkle_nodes (level, idx, hash) VALUES (?1, ?2, ?3)",
+                params![level, *index as i64, hash.as_slice()],
+            )?;
+        }
+        level_nodes = level_nodes
+            .iter()
+            .filter(|(index, _)| *index % 2 == 0)
+            .filter_map(|(index, left)| {
+                let right = level_nodes.get(&(index + 1))?;
+                Some((index / 2, node_hash(left, right)))
+            })
+            .collect();
+        level += 1;
+    }
+    Ok(())
 }
 
 /// Flips the lowest bit of byte `index` of a BLOB column of entry `seq`.
@@ -246,8 +284,9 @@ fn insert_row(conn: &Connection, entry: &Entry) -> rusqlite::Result<usize> {
 }
 
 /// Hand-makes the next entry after the real head, correctly linked, hashed and signed by
-/// `signer`, and INSERTs it. The insert guard only asks for the next sequence number, so no
-/// trigger needs dropping. Returns its sequence number.
+/// `signer`, and INSERTs it with the tree nodes its leaf completes. The insert guards only ask
+/// for the next sequence number and a node not yet stored, so no trigger needs dropping.
+/// Returns its sequence number.
 fn forge_next<R: Record>(path: &Path, author: &str, record: &R, signer: &Signer) -> u64 {
     let conn = Connection::open(path).expect("open ledger file with SQLite");
     let (head_seq, head_hash, head_time): (i64, Vec<u8>, i64) = conn
@@ -272,7 +311,26 @@ fn forge_next<R: Record>(path: &Path, author: &str, record: &R, signer: &Signer)
     };
     entry.hash = entry.compute_hash();
     entry.signature = Some(signer.sign_entry(&entry.hash));
+    let stored_hashes: Vec<Vec<u8>> = conn
+        .prepare("SELECT hash FROM entries ORDER BY seq")
+        .and_then(|mut s| {
+            s.query_map([], |r| r.get(0))?
+                .collect::<rusqlite::Result<_>>()
+        })
+        .expect("read entry hashes");
+    let mut tree = MemoryTree::from_leaf_data(&stored_hashes);
     insert_row(&conn, &entry).expect("insert forged entry");
+    for node in tree.push_leaf_hash(leaf_hash(&entry.hash.0)) {
+        conn.execute(
+            "INSERT INTO merkle_nodes (level, idx, hash) VALUES (?1, ?2, ?3)",
+            params![
+                i64::from(node.level),
+                node.index as i64,
+                node.hash.as_slice()
+            ],
+        )
+        .expect("insert forged tree nodes");
+    }
     entry.seq
 }
 

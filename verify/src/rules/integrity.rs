@@ -8,7 +8,10 @@ use assize_ledger::{AuthorityIssue, EntryHash, IntegrityReport, Problem};
 /// The code a replay problem falls under.
 pub fn code_of(problem: &Problem) -> Code {
     match problem {
-        Problem::HashMismatch { .. } | Problem::BrokenLink { .. } => Code::EntryAltered,
+        // The Merkle tree kept beside the chain disagreeing with it is an alteration too.
+        Problem::HashMismatch { .. }
+        | Problem::BrokenLink { .. }
+        | Problem::TreeNodeMismatch { .. } => Code::EntryAltered,
         Problem::Empty | Problem::SequenceGap { .. } | Problem::MalformedRow { .. } => {
             Code::EntriesMissing
         }
