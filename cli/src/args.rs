@@ -69,6 +69,8 @@ pub enum Command {
     Codes,
     /// Everything a reviewer must look at for one run's result, and the report's SHA-256.
     Exceptions(ExceptionsArgs),
+    /// Where a run's result came from, down to every raw reading, with who, when and every change.
+    Explain(ExplainArgs),
     /// Sign a run (or its result) as reviewed or approved (reviewer or QA).
     Sign(SignArgs),
     /// Summarize a period for the quality unit: rates, roles and keys, results to re-review.
@@ -99,6 +101,17 @@ pub struct ReplayArgs {
 pub struct ExceptionsArgs {
     /// Run id.
     pub run: String,
+}
+
+/// `assize explain`
+#[derive(Debug, Args)]
+pub struct ExplainArgs {
+    /// Run id (or, with --entry, leave out).
+    #[arg(required_unless_present = "entry", conflicts_with = "entry")]
+    pub run: Option<String>,
+    /// Explain the run this entry belongs to (its result, a weighing, the run entry itself).
+    #[arg(long, value_name = "SEQ")]
+    pub entry: Option<u64>,
 }
 
 /// `assize sign`

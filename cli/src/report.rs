@@ -3,6 +3,7 @@
 
 use assize_ledger::Entry;
 use assize_verify::exceptions::ExceptionReport;
+use assize_verify::explain::{Explanation, Provenance, RunExplained, SignatureState};
 use assize_verify::findings::{Finding, Severity, RULES};
 use assize_verify::records::SignOff;
 use assize_verify::validate::{Scope, Validation};
@@ -340,4 +341,173 @@ pub fn periodic_text(p: &assize_verify::periodic::PeriodicReview) -> String {
     text.push('\n');
     text.push_str(&findings_text(&p.findings));
     text
+}
+
+/// One line of a printed tree and the lines under it.
+struct TreeNode {
+    line: String,
+    children: Vec<TreeNode>,
+}
+
+impl TreeNode {
+    fn leaf(line: impl Into<String>) -> TreeNode {
+        TreeNode {
+            line: line.into(),
+            children: Vec::new(),
+        }
+    }
+
+    fn with(line: impl Into<String>, children: Vec<TreeNode>) -> TreeNode {
+        TreeNode {
+            line: line.into(),
+            children,
+        }
+    }
+
+    /// Writes the children under `prefix`, with box-drawing branches.
+    fn write_children(&self, prefix: &str, out: &mut String) {
+        for (i, child) in self.children.iter().enumerate() {
+            let last = i + 1 == self.children.len();
+            out.push_str(prefix);
+            out.push_str(if last { "└─ " } else { "├─ " });
+            out.push_str(&child.line);
+            out.push('\n');
+            let deeper = format!("{prefix}{}", if last { "   " } else { "│  " });
+            child.write_children(&deeper, out);
+        }
+    }
+}
+
+fn signature_text(state: &SignatureState) -> &'static str {
+    match state {
+        SignatureState::Verified => "signature verified",
+        SignatureState::Unsigned => "UNSIGNED",
+        SignatureState::Broken => "SIGNATURE DOES NOT VERIFY",
+        SignatureState::NotTheAuthorsKey => "SIGNED WITH ANOTHER PERSON'S KEY",
+    }
+}
+
+/// An entry as a tree node: what it says, who, when, signature, then each correction.
+fn provenance_node(label: &str, p: &Provenance, mut children: Vec<TreeNode>) -> TreeNode {
+    let line = format!(
+        "{label} #{}: {} · {} · {} · {}",
+        p.seq,
+        p.says,
+        p.author,
+        p.recorded_at,
+        signature_text(&p.signature)
+    );
+    for c in &p.corrections {
+        let changed: Vec<String> = c
+            .changes
+            .iter()
+            .map(|f| format!("{}: {} → {}", f.field, f.old, f.new))
+            .collect();
+        children.push(TreeNode::leaf(format!(
+            "corrected by #{} · {} · {}{} · reason: {} · {}",
+            c.seq,
+            c.author,
+            c.recorded_at,
+            if c.signed {
+                ""
+            } else {
+                " · UNSIGNED, not in force"
+            },
+            if c.reason.trim().is_empty() {
+                "(none given)"
+            } else {
+                &c.reason
+            },
+            changed.join("; ")
+        )));
+    }
+    TreeNode::with(line, children)
+}
+
+fn run_node(run: &RunExplained) -> TreeNode {
+    let mut children = vec![provenance_node("run", &run.run, Vec::new())];
+    children.push(TreeNode::leaf(format!("formula: {}", run.formula)));
+    children.push(TreeNode::leaf(match &run.recomputed {
+        Ok(o) => format!(
+            "recomputed: mean {:.6} {}{}{}",
+            o.mean,
+            o.unit,
+            o.rsd_percent
+                .map_or(String::new(), |r| format!(", RSD {r:.3} %")),
+            o.reported.as_ref().map_or(String::new(), |r| format!(
+                ", reported as {} ± {} {} (k = {:.2})",
+                r.value, r.expanded_uncertainty, o.unit, o.budget.coverage_factor
+            ))
+        ),
+        Err(why) => format!("cannot recompute: {why}"),
+    }));
+    for r in &run.results {
+        children.push(provenance_node("result", r, Vec::new()));
+    }
+    for rep in &run.replicates {
+        let mut under = Vec::new();
+        for w in &rep.weighings {
+            let b = &w.balance;
+            let mut balance = Vec::new();
+            match &b.calibration {
+                Some(c) => balance.push(provenance_node(
+                    if b.calibration_valid_then {
+                        "calibration in force"
+                    } else {
+                        "calibration NOT VALID on the day"
+                    },
+                    c,
+                    Vec::new(),
+                )),
+                None => balance.push(TreeNode::leaf("NO CALIBRATION on or before the day")),
+            }
+            if b.checks.is_empty() {
+                balance.push(TreeNode::leaf("NO ROUTINE CHECK earlier that day"));
+            }
+            for c in &b.checks {
+                balance.push(provenance_node("check", c, Vec::new()));
+            }
+            let net = TreeNode::leaf(format!("net {} g", w.net_g));
+            let balance = provenance_node("balance", &b.balance, balance);
+            under.push(provenance_node("weighing", &w.entry, vec![net, balance]));
+        }
+        for e in &rep.entries {
+            under.push(provenance_node(&e.kind.replace("lab.", ""), e, Vec::new()));
+        }
+        let line = match (&rep.value, &rep.substituted) {
+            (Some(_), Some(s)) => format!("replicate {}: {s}", rep.number),
+            _ => format!("replicate {} (not counted)", rep.number),
+        };
+        children.push(TreeNode::with(line, under));
+    }
+    for m in &run.materials {
+        children.push(provenance_node("material", m, Vec::new()));
+    }
+    for d in &run.documents {
+        children.push(provenance_node("document", d, Vec::new()));
+    }
+    for s in &run.statements {
+        children.push(provenance_node(&s.kind.replace("lab.", ""), s, Vec::new()));
+    }
+    if let Some(std) = &run.standardization {
+        children.push(run_node(std));
+    }
+    TreeNode::with(
+        format!("{:?} {}", run.kind, run.id).to_lowercase(),
+        children,
+    )
+}
+
+/// `assize explain` as a tree.
+pub fn explanation_text(e: &Explanation) -> String {
+    let mut out = format!(
+        "where the result of run {} comes from · ledger head entry {} ({}) · {} entries\n",
+        e.run.id,
+        e.head_seq,
+        &e.head_hash[..16.min(e.head_hash.len())],
+        e.entries.len()
+    );
+    let root = TreeNode::with(String::new(), vec![run_node(&e.run)]);
+    root.write_children("", &mut out);
+    out
 }

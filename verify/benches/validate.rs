@@ -18,10 +18,13 @@
 //!    (a) and (b) in each round;
 //! 3. builds a second ledger of a tenth of the size and runs (a), (b) and (c) on each ledger in
 //!    a child process (this executable again, with `--memory-child PHASE PATH`), reading each
-//!    child's peak resident memory (`VmHWM`); flat means large / small ≤ 1.10.
+//!    child's peak resident memory (`VmHWM`); flat means large / small ≤ 1.10;
+//! 4. times (d) `explain::explain` of one result on the large ledger, by entry and by run id,
+//!    against the target of 100 ms.
 //!
-//! For profiling, `--build-only ENTRIES PATH` builds one ledger and keeps it, and
-//! `--memory-child PHASE PATH` then runs one phase on it.
+//! For profiling, `--build-only ENTRIES PATH` builds one ledger and keeps it,
+//! `--memory-child PHASE PATH` then runs one phase on it, and `--explain-only PATH` times
+//! `explain` on it.
 //!
 //! Inputs are fixed (keys, readings from a seeded generator, a clock the builder sets), so only
 //! the timings and the random ledger ids differ between runs. It writes only inside a temporary
@@ -62,6 +65,8 @@ const CHILD_FLAG: &str = "--memory-child";
 /// Private argument that only builds a ledger and keeps it (for profiling a phase on it with
 /// `--memory-child`): `--build-only ENTRIES PATH`.
 const BUILD_FLAG: &str = "--build-only";
+/// Private argument that only times `explain` on a kept ledger: `--explain-only PATH`.
+const EXPLAIN_FLAG: &str = "--explain-only";
 /// First word of the line a memory child prints for its parent.
 const CHILD_REPORT: &str = "assize-validate-child";
 
@@ -164,6 +169,13 @@ fn main() -> BenchResult<()> {
         };
         return run_memory_child(phase, Path::new(path));
     }
+    if let Some(position) = args.iter().position(|a| a == EXPLAIN_FLAG) {
+        let path = args
+            .get(position + 1)
+            .ok_or(format!("usage: {EXPLAIN_FLAG} PATH"))?;
+        print_explain(&measure_explain(Path::new(path))?);
+        return Ok(());
+    }
     if let Some(position) = args.iter().position(|a| a == BUILD_FLAG) {
         let entries = args.get(position + 1).and_then(|n| n.parse::<u64>().ok());
         let path = args.get(position + 2);
@@ -189,6 +201,7 @@ fn main() -> BenchResult<()> {
     print_ledger("ledger", &big_spec, &big, &big_path);
     println!();
     let timings = measure(&big_path, big.entries, plan.rounds)?;
+    let explained = measure_explain(&big_path)?;
     print_findings("(b) full validation", &timings.validation);
     print_findings("(c) in-memory validation", &timings.in_memory_validation);
 
@@ -212,7 +225,89 @@ fn main() -> BenchResult<()> {
     };
     println!();
     print_table(&timings, &memory);
+    print_explain(&explained);
     Ok(())
+}
+
+/// How long `explain` takes on the large ledger, opening it each time, best of a few.
+struct ExplainTimes {
+    /// Entries an explanation shows.
+    entries_shown: usize,
+    /// By the sequence number of one of the last run's entries (index reads only).
+    by_entry: Duration,
+    /// By the id of the last run recorded.
+    by_id_newest: Duration,
+    /// By the id of a run in the middle of the ledger.
+    by_id_middle: Duration,
+}
+
+/// Target for explaining one value.
+const TARGET_EXPLAIN: Duration = Duration::from_millis(100);
+/// Timed tries of each explain.
+const EXPLAIN_TRIES: usize = 5;
+
+fn measure_explain(path: &Path) -> BenchResult<ExplainTimes> {
+    use assize_verify::explain::{explain, Explanation, Target};
+    let explain_once = |target: &Target| -> BenchResult<(Duration, Explanation)> {
+        let started = std::time::Instant::now();
+        let mut ledger = open_read_only(path)?;
+        let explanation = explain(&mut ledger, target)?;
+        Ok((started.elapsed(), explanation))
+    };
+    let best = |target: &Target| -> BenchResult<(Duration, Explanation)> {
+        let mut best = explain_once(target)?;
+        for _ in 1..EXPLAIN_TRIES {
+            let next = explain_once(target)?;
+            if next.0 < best.0 {
+                best = next;
+            }
+        }
+        Ok(best)
+    };
+    let head = open_read_only(path)?.head()?.ok_or("empty ledger")?.seq;
+    // The last entries belong to the newest assay.
+    let (by_entry, newest) = best(&Target::Entry(head))?;
+    let (by_id_newest, _) = best(&Target::RunId(newest.run.id.clone()))?;
+    let (_, middle) = explain_once(&Target::Entry(head / 2))
+        .or_else(|_| explain_once(&Target::Entry(head / 2 + 1)))?;
+    let (by_id_middle, _) = best(&Target::RunId(middle.run.id.clone()))?;
+    eprintln!(
+        "explain: run {} by entry {head}: {:.1} ms; by id {:.1} ms; run {} by id {:.1} ms",
+        newest.run.id,
+        by_entry.as_secs_f64() * 1e3,
+        by_id_newest.as_secs_f64() * 1e3,
+        middle.run.id,
+        by_id_middle.as_secs_f64() * 1e3
+    );
+    Ok(ExplainTimes {
+        entries_shown: newest.entries.len(),
+        by_entry,
+        by_id_newest,
+        by_id_middle,
+    })
+}
+
+fn print_explain(e: &ExplainTimes) {
+    let ms = |d: Duration| format!("{:.1} ms", d.as_secs_f64() * 1e3);
+    let target = format!("< {} ms", TARGET_EXPLAIN.as_millis());
+    for (label, took) in [
+        ("(d) explain the newest result, by entry", e.by_entry),
+        ("(d) explain the newest result, by run id", e.by_id_newest),
+        ("(d) explain a middle result, by run id", e.by_id_middle),
+    ] {
+        print_row(&[
+            label,
+            &ms(took),
+            "-",
+            &format!("{} entries", e.entries_shown),
+            "-",
+            &target,
+            verdict(took < TARGET_EXPLAIN),
+        ]);
+    }
+    println!(
+        "explain: best of {EXPLAIN_TRIES}, each opening the ledger read-only first (as the command does)."
+    );
 }
 
 fn print_ledger(what: &str, spec: &LedgerSpec, built: &Built, path: &Path) {

@@ -305,7 +305,7 @@ pub fn report(
 }
 
 /// The top-level fields that differ between two bodies.
-fn changes(before: Option<&LabBody>, after: Option<&LabBody>) -> Vec<FieldChange> {
+pub(crate) fn changes(before: Option<&LabBody>, after: Option<&LabBody>) -> Vec<FieldChange> {
     let as_map = |body: Option<&LabBody>| match body.map(body_json) {
         Some(Value::Object(map)) => map,
         _ => serde_json::Map::new(),

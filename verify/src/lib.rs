@@ -17,16 +17,21 @@ pub mod conformance;
 pub mod correction;
 pub mod documents;
 pub mod exceptions;
+pub mod explain;
 pub mod findings;
 pub mod intake;
 pub mod outliers;
 pub mod periodic;
+/// A balance's printed readings in assize's own line format, parsed all-or-nothing.
+pub mod printout;
 pub mod quantity;
 pub mod recompute;
 pub mod records;
 pub mod rounding;
 pub mod rules;
 pub mod signoff;
+/// Keyed readings matched to captured ones, and the likely keying slip when they differ.
+pub mod slips;
 pub mod stats;
 pub mod stream;
 pub mod uncertainty;

@@ -93,6 +93,13 @@ impl Unit {
         }
     }
 
+    /// Every unit of one dimension, largest first (kg, g, mg, ug or L, mL).
+    pub fn of_dimension(dimension: Dimension) -> impl Iterator<Item = Unit> {
+        Unit::ALL
+            .into_iter()
+            .filter(move |unit| unit.dimension() == dimension)
+    }
+
     /// How many base units (g or mL) one of this unit is.
     pub fn to_base_factor(self) -> Decimal {
         match self {
@@ -340,6 +347,17 @@ mod tests {
             v.grams(),
             Err(QuantityError::WrongDimension { .. })
         ));
+    }
+
+    #[test]
+    fn lists_the_units_of_each_dimension() {
+        let mass: Vec<Unit> = Unit::of_dimension(Dimension::Mass).collect();
+        assert_eq!(
+            mass,
+            [Unit::Kilogram, Unit::Gram, Unit::Milligram, Unit::Microgram]
+        );
+        let volume: Vec<Unit> = Unit::of_dimension(Dimension::Volume).collect();
+        assert_eq!(volume, [Unit::Litre, Unit::Millilitre]);
     }
 
     #[test]

@@ -5,6 +5,7 @@ mod checkpoint;
 mod create;
 mod demo;
 mod entries;
+mod explain;
 mod key;
 mod lab;
 mod note;
@@ -37,6 +38,7 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Replay(args) => replay::run(cli, args),
         Command::Codes => replay::codes(cli),
         Command::Exceptions(args) => review::exceptions(cli, args),
+        Command::Explain(args) => explain::run(cli, args),
         Command::Sign(args) => review::sign(cli, args),
         Command::Periodic(args) => periodic::run(cli, args),
         Command::Demo(args) => demo::run(cli, args),
