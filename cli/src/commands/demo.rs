@@ -179,6 +179,7 @@ fn demo_text(summary: &DemoSummary, people: &str) -> String {
          Validated (integrity, recompute, every rule of the adopted policy and method):\n{}\n\
          Try next:\n  {program} --ledger {ledger} replay --run AS-HP-26-0871-1\n  \
          {program} --ledger {ledger} exceptions AS-HP-26-0871-1\n  \
+         {program} --ledger {ledger} explain AS-HP-26-0871-1\n  \
          {program} --ledger {ledger} codes\n  \
          {program} --ledger {ledger} entries list\n  \
          {program} --ledger {ledger} entries show 1\n  \
