@@ -336,6 +336,15 @@ impl Reader<'_> {
         Ok(latest.unwrap_or_else(|| entry.body.clone()))
     }
 
+    /// The corrections shown under `shown`, as read (for the catalog a recompute uses).
+    fn corrections_shown(&self, shown: &Provenance) -> Vec<Arc<CatalogEntry>> {
+        shown
+            .corrections
+            .iter()
+            .filter_map(|c| self.read.get(&c.seq).cloned())
+            .collect()
+    }
+
     /// An entry with its corrections, as shown.
     fn provenance(&mut self, entry: &CatalogEntry) -> Result<Provenance, ExplainError> {
         let corrections = self.corrections_of(&entry.hash)?;
@@ -392,7 +401,9 @@ impl Reader<'_> {
         let mut documents = Vec::new();
         for hash in [body.method, body.policy] {
             if let Some(e) = self.by_hash(&hash)? {
-                documents.push(self.provenance(&e)?);
+                let shown = self.provenance(&e)?;
+                gathered.extend(self.corrections_shown(&shown));
+                documents.push(shown);
                 gathered.push(e);
             }
         }
@@ -539,12 +550,14 @@ impl Reader<'_> {
             .by_hash(&w.balance)?
             .ok_or_else(|| ExplainError::NotFound(format!("balance {} is missing", w.balance)))?;
         let balance = self.provenance(&balance_entry)?;
+        records.extend(self.corrections_shown(&balance));
         records.push(balance_entry);
         let calibration = self.calibration_in_force(&w.balance, day, seq)?;
         let (calibration, calibration_valid_then) = match calibration {
             Some((entry, c)) => {
                 let valid = c.passed && parse_day(&c.due_on).is_some_and(|due| due >= day);
                 let shown = self.provenance(&entry)?;
+                records.extend(self.corrections_shown(&shown));
                 records.push(entry);
                 (Some(shown), valid)
             }
@@ -552,7 +565,9 @@ impl Reader<'_> {
         };
         let mut checks = Vec::new();
         for entry in self.checks_before(&w.balance, day, w.first_at, seq)? {
-            checks.push(self.provenance(&entry)?);
+            let shown = self.provenance(&entry)?;
+            records.extend(self.corrections_shown(&shown));
+            checks.push(shown);
             records.push(entry);
         }
         Ok(BalanceAtUse {
@@ -644,24 +659,27 @@ impl Reader<'_> {
     }
 }
 
-/// The sequence numbers a run explanation shows (its own and its replicates' entries).
+/// The sequence numbers a run explanation shows, with the corrections shown under each
+/// (so a catalog rebuilt from them recomputes the run exactly as its own explanation did).
 fn std_seqs(run: &RunExplained) -> Vec<u64> {
-    let mut seqs = vec![run.run.seq];
-    seqs.extend(run.materials.iter().map(|p| p.seq));
-    seqs.extend(run.documents.iter().map(|p| p.seq));
+    let mut shown: Vec<&Provenance> = vec![&run.run];
+    shown.extend(&run.results);
+    shown.extend(&run.materials);
+    shown.extend(&run.documents);
+    shown.extend(&run.statements);
     for r in &run.replicates {
-        seqs.extend(r.entries.iter().map(|p| p.seq));
+        shown.extend(&r.entries);
         for w in &r.weighings {
-            seqs.push(w.entry.seq);
-            seqs.push(w.balance.balance.seq);
-            seqs.extend(w.balance.calibration.iter().map(|p| p.seq));
-            seqs.extend(w.balance.checks.iter().map(|p| p.seq));
-        }
-        for p in r.entries.iter().chain(r.weighings.iter().map(|w| &w.entry)) {
-            seqs.extend(p.corrections.iter().map(|c| c.seq));
+            shown.push(&w.entry);
+            shown.push(&w.balance.balance);
+            shown.extend(&w.balance.calibration);
+            shown.extend(&w.balance.checks);
         }
     }
-    seqs
+    shown
+        .into_iter()
+        .flat_map(|p| std::iter::once(p.seq).chain(p.corrections.iter().map(|c| c.seq)))
+        .collect()
 }
 
 fn parse_day(text: &str) -> Option<NaiveDate> {

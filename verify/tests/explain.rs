@@ -10,9 +10,13 @@
 #[allow(dead_code)] // shared with the rule tests, which use the rest of it
 mod support;
 
+use assize_ledger::{Ledger, Record};
 use assize_verify::catalog::{Catalog, LabBody};
+use assize_verify::correction::correction_draft;
 use assize_verify::explain::{explain, ExplainError, SignatureState, Target};
+use assize_verify::records::ReferenceLot;
 use std::collections::BTreeSet;
+use std::rc::Rc;
 use support::*;
 
 /// Every entry the assay's value depends on, from a scan of the whole catalog.
@@ -171,4 +175,56 @@ fn an_unknown_run_or_an_entry_outside_runs_is_refused_with_what_to_do() {
         Err(ExplainError::NotFound(what)) => assert!(what.contains("entry 1"), "{what}"),
         other => panic!("expected NotFound, got {other:?}"),
     }
+}
+
+#[test]
+fn a_corrected_reference_lot_is_used_as_corrected_in_the_explained_numbers() {
+    let mut plan = Plan::clean();
+    let time = plus(plan.step("approval").at, 600);
+    plan.steps.push(drafted(
+        "lot-correction",
+        time,
+        Who::Analyst,
+        Rc::new(|_: &Ledger, catalog: &Catalog, author: &str| {
+            let lot = catalog
+                .find_id(ReferenceLot::KIND, REFERENCE_LOT)
+                .expect("the scenario's reference lot");
+            // Invented: the certificate's purity re-read as 0.99915 instead of 0.99965.
+            let changes = [("purity".to_string(), "0.99915".to_string())];
+            correction_draft(
+                catalog,
+                lot,
+                &changes,
+                "purity re-read from the certificate",
+                author,
+            )
+            .expect("a correction of the lot")
+        }),
+    ));
+    let mut built = build(&plan);
+    let correction_seq = built.seq("lot-correction");
+    let catalog = Catalog::load(built.ledger.store()).expect("catalog");
+    let whole = recomputed(&catalog, ASSAY);
+    let explanation = explain(&mut built.ledger, &Target::RunId(ASSAY.into())).expect("explained");
+    assert!(explanation.entries.contains(&correction_seq));
+    assert_eq!(
+        explanation.run.recomputed.as_ref().expect("recomputed"),
+        &whole.outcome
+    );
+    let std = explanation
+        .run
+        .standardization
+        .as_deref()
+        .expect("standardization");
+    let std_whole = recomputed(&catalog, STANDARDIZATION);
+    assert_eq!(
+        std.recomputed.as_ref().expect("recomputed"),
+        &std_whole.outcome
+    );
+    // And the correction did change the numbers (else this test would prove nothing).
+    let uncorrected = recomputed(
+        &Catalog::load(build(&Plan::clean()).ledger.store()).expect("catalog"),
+        ASSAY,
+    );
+    assert_ne!(uncorrected.outcome.mean, whole.outcome.mean);
 }
