@@ -1093,6 +1093,7 @@ impl Stream {
         for judged in judged_runs {
             self.remember_judged(judged, first_time);
         }
+        self.forget_old_days();
         Ok(())
     }
 
@@ -1173,7 +1174,6 @@ impl Stream {
             }
             self.remember_fingerprint(run_seq, at, fingerprint);
         }
-        self.forget_old_days();
         if let Some((findings, summary)) = judged {
             self.scope_found = true;
             if first_time {
