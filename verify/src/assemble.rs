@@ -55,7 +55,7 @@ pub struct Recomputed {
     /// Which run, under which documents.
     pub context: RunContext,
     /// The standardization an assay used (for an assay).
-    pub standardization: Option<Outcome>,
+    pub standardization: Option<Arc<Outcome>>,
     /// The run's own outcome.
     pub outcome: Outcome,
 }
@@ -159,7 +159,7 @@ pub struct Recomputer<'a> {
     /// A run named as a standardization, by run entry.
     standardizations: HashMap<EntryHash, Arc<Standardization>>,
     /// A standardization's outcome, by (run entry, policy adoption entry of the settings).
-    standardization_outcomes: HashMap<(EntryHash, EntryHash), Result<Outcome, String>>,
+    standardization_outcomes: HashMap<(EntryHash, EntryHash), Result<Arc<Outcome>, String>>,
     /// The last few standardizations worked out, with the very inputs they were worked out
     /// from (carried between recomputers in [`DocumentMemory`]).
     recent_standardizations: VecDeque<WorkedStandardization>,
@@ -174,7 +174,7 @@ const RECENT_STANDARDIZATIONS: usize = 8;
 struct WorkedStandardization {
     settings: Settings,
     data: StandardizationData,
-    outcome: Result<Outcome, String>,
+    outcome: Result<Arc<Outcome>, String>,
 }
 
 /// What a [`Recomputer`] remembers that does not depend on its catalog: parsed documents,
@@ -258,7 +258,7 @@ impl<'a> Recomputer<'a> {
                 Ok(Recomputed {
                     context,
                     standardization: None,
-                    outcome,
+                    outcome: Arc::unwrap_or_clone(outcome),
                 })
             }
             RunKind::Assay => self.assay_run(context, settings),
@@ -317,7 +317,7 @@ impl<'a> Recomputer<'a> {
         policy: EntryHash,
         data: &StandardizationData,
         settings: Settings,
-    ) -> Result<Outcome, String> {
+    ) -> Result<Arc<Outcome>, String> {
         if let Some(known) = self.standardization_outcomes.get(&(std_hash, policy)) {
             return known.clone();
         }
@@ -328,7 +328,9 @@ impl<'a> Recomputer<'a> {
         {
             return worked.outcome.clone();
         }
-        let outcome = standardize(data, settings).map_err(|e| e.to_string());
+        let outcome = standardize(data, settings)
+            .map(Arc::new)
+            .map_err(|e| e.to_string());
         if self.recent_standardizations.len() == RECENT_STANDARDIZATIONS {
             self.recent_standardizations.pop_front();
         }

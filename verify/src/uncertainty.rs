@@ -10,7 +10,7 @@
 //! reporting, never reads records or policies, never judges a result against limits and never
 //! prints; the budget it returns is data for others to show.
 
-use std::collections::{BTreeMap, BTreeSet};
+use std::collections::BTreeMap;
 use std::fmt;
 
 use crate::stats::{self, StatsError};
@@ -329,8 +329,8 @@ impl std::error::Error for UncertaintyError {
 const CANCELLATION_TOLERANCE: f64 = 1e-12;
 
 /// One budget line before the model value is known: an uncorrelated term or a whole group.
-struct Source {
-    members: Vec<String>,
+struct Source<'a> {
+    members: Vec<&'a str>,
     value: f64,
     standard_uncertainty: f64,
     exponent: f64,
@@ -339,7 +339,7 @@ struct Source {
     grouped: bool,
 }
 
-impl Source {
+impl Source<'_> {
     fn is_cancelled(&self) -> bool {
         self.grouped && self.exponent.abs() <= CANCELLATION_TOLERANCE * self.absolute_exponents
     }
@@ -393,7 +393,7 @@ pub fn evaluate(model: &ProductModel, rule: CoverageRule) -> Result<Budget, Unce
     let cancelled = sources
         .iter()
         .filter(|(_, source)| source.is_cancelled())
-        .map(|(name, _)| name.clone())
+        .map(|(name, _)| name.to_string())
         .collect();
 
     Ok(Budget {
@@ -513,41 +513,44 @@ fn check_unique_names(terms: &[&Term]) -> Result<(), UncertaintyError> {
 }
 
 /// Budget lines keyed by name: uncorrelated terms as they are, groups merged (exponents added).
-fn collect_sources(terms: &[&Term]) -> Result<BTreeMap<String, Source>, UncertaintyError> {
-    let ungrouped: BTreeSet<&str> = terms
-        .iter()
-        .filter(|term| term.correlation_group.is_none())
-        .map(|term| term.name.as_str())
-        .collect();
-    let mut sources: BTreeMap<String, Source> = BTreeMap::new();
+fn collect_sources<'a>(
+    terms: &[&'a Term],
+) -> Result<BTreeMap<&'a str, Source<'a>>, UncertaintyError> {
+    let is_ungrouped_name = |name: &str| {
+        // `terms` are sorted by name.
+        terms
+            .binary_search_by(|term| term.name.as_str().cmp(name))
+            .is_ok_and(|at| terms[at].correlation_group.is_none())
+    };
+    let mut sources: BTreeMap<&'a str, Source<'a>> = BTreeMap::new();
     for term in terms {
         let Some(group) = term.correlation_group.as_deref() else {
-            sources.insert(term.name.clone(), source_of(term, false));
+            sources.insert(term.name.as_str(), source_of(term, false));
             continue;
         };
-        if ungrouped.contains(group) {
+        if is_ungrouped_name(group) {
             return Err(UncertaintyError::CorrelationGroupNameClash {
                 group: group.to_string(),
             });
         }
         match sources.get_mut(group) {
             None => {
-                sources.insert(group.to_string(), source_of(term, true));
+                sources.insert(group, source_of(term, true));
             }
             Some(source) => {
                 check_same_error(group, source, term)?;
                 source.exponent += term.exponent;
                 source.absolute_exponents += term.exponent.abs();
-                source.members.push(term.name.clone());
+                source.members.push(term.name.as_str());
             }
         }
     }
     Ok(sources)
 }
 
-fn source_of(term: &Term, grouped: bool) -> Source {
+fn source_of(term: &Term, grouped: bool) -> Source<'_> {
     Source {
-        members: vec![term.name.clone()],
+        members: vec![term.name.as_str()],
         value: term.value,
         standard_uncertainty: term.standard_uncertainty,
         exponent: term.exponent,
@@ -577,7 +580,7 @@ fn check_same_error(group: &str, source: &Source, term: &Term) -> Result<(), Unc
         if first != found {
             return Err(UncertaintyError::CorrelationGroupMismatch {
                 group: group.to_string(),
-                first_term: source.members[0].clone(),
+                first_term: source.members[0].to_string(),
                 term: term.name.clone(),
                 quantity,
                 first,
@@ -589,7 +592,7 @@ fn check_same_error(group: &str, source: &Source, term: &Term) -> Result<(), Unc
 }
 
 /// `constant · Π x^p` over the lines; a cancelled group contributes exactly 1.
-fn model_value(constant: f64, sources: &BTreeMap<String, Source>) -> Result<f64, UncertaintyError> {
+fn model_value(constant: f64, sources: &BTreeMap<&str, Source>) -> Result<f64, UncertaintyError> {
     let value = sources
         .values()
         .filter(|source| !source.is_cancelled())
@@ -612,7 +615,7 @@ fn contribution_line(name: &str, source: &Source, model_value: f64) -> Contribut
     let sensitivity = exponent * model_value / source.value;
     Contribution {
         name: name.to_string(),
-        members: source.members.clone(),
+        members: source.members.iter().map(|member| member.to_string()).collect(),
         value: source.value,
         standard_uncertainty: source.standard_uncertainty,
         relative_uncertainty: source.standard_uncertainty / source.value.abs(),

@@ -36,7 +36,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
                     let expected = expected_for(
                         stated,
                         &recomputed.outcome,
-                        recomputed.standardization.as_ref(),
+                        recomputed.standardization.as_deref(),
                     );
                     if let Some(problem) = compare_stated(stated, expected) {
                         out.push(
