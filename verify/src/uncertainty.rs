@@ -615,7 +615,11 @@ fn contribution_line(name: &str, source: &Source, model_value: f64) -> Contribut
     let sensitivity = exponent * model_value / source.value;
     Contribution {
         name: name.to_string(),
-        members: source.members.iter().map(|member| member.to_string()).collect(),
+        members: source
+            .members
+            .iter()
+            .map(|member| member.to_string())
+            .collect(),
         value: source.value,
         standard_uncertainty: source.standard_uncertainty,
         relative_uncertainty: source.standard_uncertainty / source.value.abs(),
