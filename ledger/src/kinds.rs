@@ -126,7 +126,13 @@ pub const REGISTRY_KINDS: [&str; 5] = [
 #[derive(Clone, Debug)]
 pub struct KindRules {
     rules: BTreeMap<String, KindRule>,
+    labeller: Option<Labeller>,
 }
+
+/// Gives the labels an entry of `kind` with `body` is looked up by in the label index (e.g. a
+/// record's own id); an empty list for entries without any. Must not fail: a body it cannot
+/// read simply has no labels.
+pub type Labeller = fn(kind: &str, body: &[u8]) -> Vec<String>;
 
 impl KindRules {
     /// Rules for the ledger's own kinds: registry changes by QA (key revocation also by the
@@ -146,7 +152,22 @@ impl KindRules {
         };
         rules.insert(KIND_REVOKE_KEY.to_string(), anyone_signed);
         rules.insert(KIND_NOTE.to_string(), anyone_signed);
-        KindRules { rules }
+        KindRules {
+            rules,
+            labeller: None,
+        }
+    }
+
+    /// The same rules, labelling appended entries with `labeller`.
+    pub fn with_labeller(mut self, labeller: Labeller) -> Self {
+        self.labeller = Some(labeller);
+        self
+    }
+
+    /// The labels of an entry of `kind` with `body` (none without a labeller).
+    pub fn labels_of(&self, kind: &str, body: &[u8]) -> Vec<String> {
+        self.labeller
+            .map_or_else(Vec::new, |label| label(kind, body))
     }
 
     /// Adds or replaces the rule for `kind`.

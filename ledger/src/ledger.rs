@@ -84,7 +84,10 @@ impl Ledger {
         rules: KindRules,
         clock: Arc<dyn Clock>,
     ) -> Result<Ledger> {
-        let store = Store::open(path, mode)?;
+        let mut store = Store::open(path, mode)?;
+        if !store.has_labels() && mode == OpenMode::ReadWrite {
+            store.build_labels(|kind, body| rules.labels_of(kind, body))?;
+        }
         Ok(Ledger {
             store,
             rules,
@@ -187,6 +190,11 @@ impl Ledger {
             };
             let (entry, change) = judge.seal(&tx, head, draft, signer)?;
             tx.insert(&entry)?;
+            tx.insert_labels(
+                entry.seq,
+                &entry.kind,
+                &self.rules.labels_of(&entry.kind, &entry.body),
+            )?;
             if let Some(change) = change {
                 changed_registry
                     .get_or_insert_with(|| self.registry.clone())

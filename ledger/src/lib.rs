@@ -34,7 +34,7 @@ pub use entry::{Draft, Entry};
 pub use error::LedgerError;
 pub use hash::EntryHash;
 pub use keyfile::{KdfCost, KeyFileInfo};
-pub use kinds::{KindRule, KindRules, Role, RoleSet, SignatureRule};
+pub use kinds::{KindRule, KindRules, Labeller, Role, RoleSet, SignatureRule};
 pub use ledger::{Ledger, OpenMode};
 pub use merkle::{MemoryTree, SubtreeSource, TreeHead};
 pub use records::Record;

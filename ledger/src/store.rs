@@ -22,11 +22,13 @@ use std::time::Duration;
 
 /// `PRAGMA application_id` of an assize ledger ("ASZ1").
 pub const APPLICATION_ID: i32 = 0x4153_5A31;
-/// Schema version this build writes and reads (2: entries and the tree's node table; files of
-/// version 1, entries only, are still read and are upgraded when opened read-write).
-pub const SCHEMA_VERSION: i64 = 2;
+/// Schema version this build writes and reads (3: entries, the tree's node table and the label
+/// index; files of versions 1 and 2 are still read, and are upgraded when opened read-write).
+pub const SCHEMA_VERSION: i64 = 3;
 /// The first schema version with the `merkle_nodes` table.
 const TREE_SCHEMA_VERSION: i64 = 2;
+/// The first schema version with the `entry_labels` table.
+const LABEL_SCHEMA_VERSION: i64 = 3;
 /// How long a writer waits for another process's append to finish.
 const BUSY_TIMEOUT: Duration = Duration::from_secs(60);
 
@@ -82,6 +84,23 @@ WHEN EXISTS (SELECT 1 FROM merkle_nodes WHERE level = NEW.level AND idx = NEW.id
 BEGIN SELECT RAISE(ABORT, 'assize tree nodes are append-only: a stored node may not be replaced'); END;
 ";
 
+/// The label index: names a record is looked up by (a run's id, say), as the kind rules'
+/// labeller gives them for each entry at append. It is not covered by the chain: a reader
+/// takes a hit only after checking the entry's own body, and falls back to reading the
+/// entries of the kind when it finds nothing. Guarded like the other tables.
+const LABEL_SCHEMA: &str = "
+CREATE TABLE entry_labels (
+    kind  TEXT    NOT NULL,
+    label TEXT    NOT NULL,
+    seq   INTEGER NOT NULL,
+    PRIMARY KEY (kind, label, seq)
+) WITHOUT ROWID;
+CREATE TRIGGER entry_labels_refuse_update BEFORE UPDATE ON entry_labels
+BEGIN SELECT RAISE(ABORT, 'assize labels are append-only: UPDATE refused'); END;
+CREATE TRIGGER entry_labels_refuse_delete BEFORE DELETE ON entry_labels
+BEGIN SELECT RAISE(ABORT, 'assize labels are append-only: DELETE refused'); END;
+";
+
 const ENTRY_COLUMNS: &str =
     "seq, hash, prev_hash, record_time, author, kind, refs, body, signer, signature";
 
@@ -111,6 +130,8 @@ pub struct Store {
     path: PathBuf,
     /// The file holds the tree's node table (schema version 2 or later).
     has_tree: bool,
+    /// The file holds the label index (schema version 3 or later).
+    has_labels: bool,
 }
 
 impl Store {
@@ -135,7 +156,7 @@ impl Store {
         }
         let setup = format!(
             "PRAGMA application_id = {APPLICATION_ID}; PRAGMA user_version = {SCHEMA_VERSION};
-             BEGIN; {SCHEMA} {TREE_SCHEMA} COMMIT;"
+             BEGIN; {SCHEMA} {TREE_SCHEMA} {LABEL_SCHEMA} COMMIT;"
         );
         conn.execute_batch(&setup)
             .map_err(storage("writing the schema"))?;
@@ -144,6 +165,7 @@ impl Store {
             conn,
             path: path.into(),
             has_tree: true,
+            has_labels: true,
         })
     }
 
@@ -193,6 +215,7 @@ impl Store {
             conn,
             path: path.into(),
             has_tree: version >= TREE_SCHEMA_VERSION,
+            has_labels: version >= LABEL_SCHEMA_VERSION,
         };
         if !store.has_tree && mode == OpenMode::ReadWrite {
             store.build_tree()?;
@@ -215,12 +238,81 @@ impl Store {
             tx.execute_batch(TREE_SCHEMA)
                 .map_err(storage("creating the tree table"))?;
             fill_tree(&tx)?;
-            tx.execute_batch(&format!("PRAGMA user_version = {SCHEMA_VERSION}"))
+            tx.execute_batch(&format!("PRAGMA user_version = {TREE_SCHEMA_VERSION}"))
                 .map_err(storage("writing the schema version"))?;
         }
         tx.commit().map_err(storage("committing the tree"))?;
         self.has_tree = true;
         Ok(())
+    }
+
+    /// Upgrades a file without the label index (schema 1 or 2, its tree already built):
+    /// creates the table and its guards and labels every stored entry with `labels_of`, all in
+    /// one write transaction (another process may have done it first, which is then left as
+    /// it is).
+    pub(crate) fn build_labels(
+        &mut self,
+        labels_of: impl Fn(&str, &[u8]) -> Vec<String>,
+    ) -> Result<()> {
+        let tx = self
+            .conn
+            .transaction_with_behavior(TransactionBehavior::Immediate)
+            .map_err(storage("starting to build the label index"))?;
+        let version: i64 = tx
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .map_err(storage("reading the schema version"))?;
+        if version < LABEL_SCHEMA_VERSION {
+            tx.execute_batch(LABEL_SCHEMA)
+                .map_err(storage("creating the label index"))?;
+            {
+                let read = |e: rusqlite::Error| storage("reading entries to label them")(e);
+                let mut statement = tx
+                    .prepare("SELECT seq, kind, body FROM entries ORDER BY seq")
+                    .map_err(read)?;
+                let mut rows = statement.query([]).map_err(read)?;
+                while let Some(row) = rows.next().map_err(read)? {
+                    let seq = row.get::<_, i64>(0).map_err(read)? as u64;
+                    let kind: String = row.get(1).map_err(read)?;
+                    let labels = match row.get_ref(2).map_err(read)? {
+                        rusqlite::types::ValueRef::Blob(body) => labels_of(&kind, body),
+                        _ => Vec::new(),
+                    };
+                    insert_labels(&tx, seq, &kind, &labels)?;
+                }
+            }
+            tx.execute_batch(&format!("PRAGMA user_version = {LABEL_SCHEMA_VERSION}"))
+                .map_err(storage("writing the schema version"))?;
+        }
+        tx.commit().map_err(storage("committing the label index"))?;
+        self.has_labels = true;
+        Ok(())
+    }
+
+    /// Whether the file holds the label index (false only for a file of schema 1 or 2 opened
+    /// read-only).
+    pub fn has_labels(&self) -> bool {
+        self.has_labels
+    }
+
+    /// Sequence numbers the label index gives for `label` among entries of `kind`, oldest
+    /// first; `None` when the file has no label index. A hint only: check each entry's body.
+    pub fn labelled(&self, kind: &str, label: &str) -> Result<Option<Vec<u64>>> {
+        if !self.has_labels {
+            return Ok(None);
+        }
+        let mut statement = self
+            .conn
+            .prepare_cached(
+                "SELECT seq FROM entry_labels WHERE kind = ?1 AND label = ?2 ORDER BY seq",
+            )
+            .map_err(storage("reading the label index"))?;
+        let rows = statement
+            .query_map(params![kind, label], |r| r.get::<_, i64>(0))
+            .map_err(storage("reading the label index"))?;
+        rows.map(|r| r.map(|s| s as u64))
+            .collect::<rusqlite::Result<Vec<_>>>()
+            .map(Some)
+            .map_err(storage("reading the label index"))
     }
 
     fn configure(conn: &Connection) -> Result<()> {
@@ -629,10 +721,26 @@ impl AppendTx<'_> {
         insert_leaf(&self.tx, self, entry.seq, &entry.hash)
     }
 
+    /// Adds the label index rows of entry `seq` (inserted in this transaction).
+    pub fn insert_labels(&self, seq: u64, kind: &str, labels: &[String]) -> Result<()> {
+        insert_labels(&self.tx, seq, kind, labels)
+    }
+
     /// Makes the append durable.
     pub fn commit(self) -> Result<()> {
         self.tx.commit().map_err(storage("committing an append"))
     }
+}
+
+fn insert_labels(conn: &Connection, seq: u64, kind: &str, labels: &[String]) -> Result<()> {
+    for label in labels {
+        conn.prepare_cached(
+            "INSERT OR IGNORE INTO entry_labels (kind, label, seq) VALUES (?1, ?2, ?3)",
+        )
+        .and_then(|mut s| s.execute(params![kind, label, seq as i64]))
+        .map_err(storage("indexing labels"))?;
+    }
+    Ok(())
 }
 
 fn read_head(conn: &Connection) -> Result<Option<Head>> {

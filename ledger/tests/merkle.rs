@@ -830,8 +830,11 @@ fn make_schema_1(path: &Path) {
         conn.execute_batch(&format!("DROP TRIGGER {trigger}"))
             .expect("drop trigger");
     }
-    conn.execute_batch("DROP TABLE merkle_nodes; PRAGMA user_version = 1;")
-        .expect("drop tree");
+    conn.execute_batch(
+        "DROP TRIGGER entry_labels_refuse_update; DROP TRIGGER entry_labels_refuse_delete;
+         DROP TABLE entry_labels; DROP TABLE merkle_nodes; PRAGMA user_version = 1;",
+    )
+    .expect("drop tree and labels");
 }
 
 fn schema_version(path: &Path) -> i64 {
@@ -884,7 +887,11 @@ fn a_schema_1_file_replays_read_only_and_gets_its_tree_when_opened_read_write() 
 
     let mut read_write = open(&path, OpenMode::ReadWrite);
     assert!(read_write.store().has_tree());
-    assert_eq!(schema_version(&path), 2);
+    assert_eq!(
+        schema_version(&path),
+        3,
+        "tree (2) and label index (3) both built"
+    );
     assert_eq!(
         node_rows(&path),
         rows_before,

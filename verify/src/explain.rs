@@ -239,7 +239,21 @@ fn find_run(ledger: &Ledger, target: &Target) -> Result<Arc<CatalogEntry>, Expla
 }
 
 /// The run with this id (the first recorded), read through the kind index page by page.
+/// The run recorded with `id`: through the label index when it has the id (each hit checked
+/// against the entry's own body), else by reading the run entries in order.
 fn run_by_id(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, ExplainError> {
+    let store = ledger.store();
+    for seq in store.labelled(Run::KIND, id)?.unwrap_or_default() {
+        if let Some(lab) = store.entry(seq)?.and_then(decoded) {
+            if matches!(&lab.body, LabBody::Run(r) if r.id == id) {
+                return Ok(lab);
+            }
+        }
+    }
+    run_by_reading_runs(ledger, id)
+}
+
+fn run_by_reading_runs(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, ExplainError> {
     const PAGE: usize = 4096;
     let mut after = 0;
     loop {

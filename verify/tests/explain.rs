@@ -14,7 +14,7 @@ use assize_ledger::{Ledger, Record};
 use assize_verify::catalog::{Catalog, LabBody};
 use assize_verify::correction::correction_draft;
 use assize_verify::explain::{explain, ExplainError, SignatureState, Target};
-use assize_verify::records::ReferenceLot;
+use assize_verify::records::{ReferenceLot, Run};
 use std::collections::BTreeSet;
 use std::rc::Rc;
 use support::*;
@@ -124,6 +124,49 @@ fn any_entry_of_a_run_leads_to_the_same_explanation() {
     let by_entry = explain(&mut built.ledger, &Target::Entry(weighing)).expect("by entry");
     assert_eq!(by_entry.run, by_id.run);
     assert_eq!(by_entry.entries, by_id.entries);
+}
+
+#[test]
+fn a_run_id_is_found_through_the_label_index_and_a_wrong_label_is_not_believed() {
+    let mut built = build(&Plan::clean());
+    let catalog = Catalog::load(built.ledger.store()).expect("catalog");
+    let assay = catalog
+        .entries()
+        .iter()
+        .find(|e| e.hash == run_hash(&catalog, ASSAY))
+        .expect("assay run entry")
+        .seq;
+    let standardization = catalog
+        .entries()
+        .iter()
+        .find(|e| e.hash == run_hash(&catalog, STANDARDIZATION))
+        .expect("standardization run entry")
+        .seq;
+    // Every run was labelled with its id when it was appended.
+    let store = built.ledger.store();
+    assert_eq!(
+        store.labelled(Run::KIND, ASSAY).expect("index"),
+        Some(vec![assay])
+    );
+    let honest = explain(&mut built.ledger, &Target::RunId(ASSAY.into())).expect("by id");
+    assert_eq!(honest.run.run.seq, assay);
+
+    // Point the assay's label at the standardization run, as a tampered or damaged index
+    // would: the body of the entry found is checked, so explain still finds the assay by
+    // reading the runs, and a label pointing at a run of another id is never taken.
+    let path = built.ledger.store().path().to_path_buf();
+    let conn = rusqlite::Connection::open(&path).expect("open with SQLite");
+    conn.execute_batch(&format!(
+        "DROP TRIGGER entry_labels_refuse_delete;
+         DELETE FROM entry_labels WHERE label = '{ASSAY}';
+         INSERT INTO entry_labels (kind, label, seq) VALUES ('{kind}', '{ASSAY}', {standardization});",
+        kind = Run::KIND
+    ))
+    .expect("tamper with the label index");
+    drop(conn);
+    let misled = explain(&mut built.ledger, &Target::RunId(ASSAY.into())).expect("by id");
+    assert_eq!(misled.run.run.seq, assay);
+    assert_eq!(misled.entries, honest.entries);
 }
 
 #[test]

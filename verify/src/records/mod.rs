@@ -77,6 +77,17 @@ pub fn all_kind_rules() -> KindRules {
         .fold(KindRules::core(), |rules, (kind, rule)| {
             rules.with(kind, rule)
         })
+        .with_labeller(record_id_label)
+}
+
+/// The label index entry of a lab record: its own id (runs, samples, balances, lots, titrants,
+/// adoptions, investigations), so `explain RUN` and the like find it without reading every
+/// record of the kind. Entries of other kinds, and bodies that do not decode, get none.
+fn record_id_label(kind: &str, body: &[u8]) -> Vec<String> {
+    match crate::catalog::LabBody::decode(kind, body) {
+        Ok(Some(record)) => record.id().map(str::to_string).into_iter().collect(),
+        _ => Vec::new(),
+    }
 }
 
 /// Decodes a body of a lab `kind` exactly and checks its fields; used for corrections, whose
