@@ -71,6 +71,8 @@ pub enum Command {
     Exceptions(ExceptionsArgs),
     /// Where a run's result came from, down to every raw reading, with who, when and every change.
     Explain(ExplainArgs),
+    /// Every version of one record (as written, then each correction) and every sign-off on it.
+    History(HistoryArgs),
     /// Sign a run (or its result) as reviewed or approved (reviewer or QA).
     Sign(SignArgs),
     /// Summarize a period for the quality unit: rates, roles and keys, results to re-review.
@@ -101,6 +103,17 @@ pub struct ReplayArgs {
 pub struct ExceptionsArgs {
     /// Run id.
     pub run: String,
+}
+
+/// `assize history`
+#[derive(Debug, Args)]
+pub struct HistoryArgs {
+    /// Sequence number of the entry (or, with --run, leave out).
+    #[arg(required_unless_present = "run", conflicts_with = "run")]
+    pub entry: Option<u64>,
+    /// The run with this id (its run entry).
+    #[arg(long, value_name = "RUN")]
+    pub run: Option<String>,
 }
 
 /// `assize explain`

@@ -5,6 +5,7 @@ use assize_ledger::Entry;
 use assize_verify::exceptions::ExceptionReport;
 use assize_verify::explain::{Explanation, Provenance, RunExplained, SignatureState};
 use assize_verify::findings::{Finding, Severity, RULES};
+use assize_verify::history::History;
 use assize_verify::records::SignOff;
 use assize_verify::validate::{Scope, Validation};
 use comfy_table::presets::UTF8_FULL_CONDENSED;
@@ -509,5 +510,117 @@ pub fn explanation_text(e: &Explanation) -> String {
     );
     let root = TreeNode::with(String::new(), vec![run_node(&e.run)]);
     root.write_children("", &mut out);
+    out
+}
+
+/// `assize history` for people: the versions as a tree (each correction under the version
+/// it replaced), then invalidations and sign-offs.
+pub fn history_text(h: &History) -> String {
+    let first = &h.versions[0];
+    let mut out = format!(
+        "history of entry {} ({}) · ledger head entry {} ({})\n",
+        first.written.seq,
+        h.kind,
+        h.head_seq,
+        &h.head_hash[..16.min(h.head_hash.len())]
+    );
+    let mut versions = Vec::new();
+    for v in &h.versions {
+        let state = if v.in_force {
+            "IN FORCE"
+        } else if v.number == 1 || v.written.signature == SignatureState::Verified {
+            "replaced"
+        } else {
+            "not in force"
+        };
+        let mut children = vec![TreeNode::leaf(format!("says: {}", v.says))];
+        if let Some(reason) = &v.reason {
+            children.push(TreeNode::leaf(format!(
+                "reason: {}",
+                if reason.trim().is_empty() {
+                    "(none given)"
+                } else {
+                    reason
+                }
+            )));
+        }
+        children.extend(
+            v.changes
+                .iter()
+                .map(|f| TreeNode::leaf(format!("{}: {} → {}", f.field, f.old, f.new))),
+        );
+        let what = if v.number == 1 {
+            "as written"
+        } else {
+            "correction"
+        };
+        versions.push(TreeNode::with(
+            format!(
+                "version {} · {what} by #{} · {} · {} · {} · {state}",
+                v.number,
+                v.written.seq,
+                v.written.author,
+                v.written.recorded_at,
+                signature_text(&v.written.signature)
+            ),
+            children,
+        ));
+    }
+    TreeNode::with(String::new(), versions).write_children("", &mut out);
+    if !h.invalidations.is_empty() {
+        out.push_str("invalidations:\n");
+        let lines = h
+            .invalidations
+            .iter()
+            .map(|i| {
+                TreeNode::leaf(format!(
+                    "#{} · {} · {} · {} · cause: {}",
+                    i.written.seq,
+                    i.written.author,
+                    i.written.recorded_at,
+                    signature_text(&i.written.signature),
+                    i.cause
+                ))
+            })
+            .collect();
+        TreeNode::with(String::new(), lines).write_children("", &mut out);
+    }
+    if h.sign_offs.is_empty() {
+        out.push_str("sign-offs: none\n");
+    } else {
+        out.push_str("sign-offs:\n");
+        let lines = h
+            .sign_offs
+            .iter()
+            .map(|s| {
+                let mut children = Vec::new();
+                if !s.comment.trim().is_empty() {
+                    children.push(TreeNode::leaf(format!("comment: {}", s.comment)));
+                }
+                if !s.justification.trim().is_empty() {
+                    children.push(TreeNode::leaf(format!(
+                        "justification (blocking findings stood): {}",
+                        s.justification
+                    )));
+                }
+                if let Some(sha) = &s.report_sha256 {
+                    children.push(TreeNode::leaf(format!("exception report sha256 {sha}")));
+                }
+                TreeNode::with(
+                    format!(
+                        "{} by {} · #{} · {} · {} · saw the ledger up to entry {}",
+                        s.meaning,
+                        s.written.author,
+                        s.written.seq,
+                        s.written.recorded_at,
+                        signature_text(&s.written.signature),
+                        s.based_on_seq
+                    ),
+                    children,
+                )
+            })
+            .collect();
+        TreeNode::with(String::new(), lines).write_children("", &mut out);
+    }
     out
 }

@@ -241,7 +241,7 @@ fn find_run(ledger: &Ledger, target: &Target) -> Result<Arc<CatalogEntry>, Expla
 /// The run with this id (the first recorded), read through the kind index page by page.
 /// The run recorded with `id`: through the label index when it has the id (each hit checked
 /// against the entry's own body), else by reading the run entries in order.
-fn run_by_id(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, ExplainError> {
+pub(crate) fn run_by_id(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, ExplainError> {
     let store = ledger.store();
     for seq in store.labelled(Run::KIND, id)?.unwrap_or_default() {
         if let Some(lab) = store.entry(seq)?.and_then(decoded) {
@@ -277,7 +277,7 @@ fn run_by_reading_runs(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, E
     }
 }
 
-fn decoded(entry: Entry) -> Option<Arc<CatalogEntry>> {
+pub(crate) fn decoded(entry: Entry) -> Option<Arc<CatalogEntry>> {
     Catalog::decode_entry(entry).ok().flatten().map(Arc::new)
 }
 
@@ -701,7 +701,7 @@ fn parse_day(text: &str) -> Option<NaiveDate> {
 }
 
 /// Whether the stored entry is what it claims: hash, signature, key of the author.
-fn signature_state(entry: &Entry, registry: &Registry) -> SignatureState {
+pub(crate) fn signature_state(entry: &Entry, registry: &Registry) -> SignatureState {
     let (Some(key), Some(signature)) = (entry.signer, entry.signature) else {
         return SignatureState::Unsigned;
     };
@@ -763,7 +763,7 @@ fn substituted(
 }
 
 /// What a body says, in one line.
-fn says(body: &LabBody) -> String {
+pub(crate) fn says(body: &LabBody) -> String {
     match body {
         LabBody::Adoption(a) => format!("{:?} {} version {}", a.document, a.id, a.version),
         LabBody::Balance(b) => format!(

@@ -19,6 +19,7 @@ pub mod documents;
 pub mod exceptions;
 pub mod explain;
 pub mod findings;
+pub mod history;
 pub mod intake;
 pub mod outliers;
 pub mod periodic;

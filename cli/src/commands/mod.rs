@@ -6,6 +6,7 @@ mod create;
 mod demo;
 mod entries;
 mod explain;
+mod history;
 mod key;
 mod lab;
 mod note;
@@ -39,6 +40,7 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Codes => replay::codes(cli),
         Command::Exceptions(args) => review::exceptions(cli, args),
         Command::Explain(args) => explain::run(cli, args),
+        Command::History(args) => history::run(cli, args),
         Command::Sign(args) => review::sign(cli, args),
         Command::Periodic(args) => periodic::run(cli, args),
         Command::Demo(args) => demo::run(cli, args),
