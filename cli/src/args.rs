@@ -73,6 +73,8 @@ pub enum Command {
     Explain(ExplainArgs),
     /// Every version of one record (as written, then each correction) and every sign-off on it.
     History(HistoryArgs),
+    /// Write one run's review dossier as a self-contained HTML page (prints, opens offline).
+    Dossier(DossierArgs),
     /// Sign a run (or its result) as reviewed or approved (reviewer or QA).
     Sign(SignArgs),
     /// Summarize a period for the quality unit: rates, roles and keys, results to re-review.
@@ -125,6 +127,26 @@ pub struct ExplainArgs {
     /// Explain the run this entry belongs to (its result, a weighing, the run entry itself).
     #[arg(long, value_name = "SEQ")]
     pub entry: Option<u64>,
+}
+
+/// `assize dossier`
+#[derive(Debug, Args)]
+pub struct DossierArgs {
+    /// Run id (or, with --entry, leave out).
+    #[arg(required_unless_present = "entry", conflicts_with = "entry")]
+    pub run: Option<String>,
+    /// The run this entry belongs to (its result, a weighing, the run entry itself).
+    #[arg(long, value_name = "SEQ")]
+    pub entry: Option<u64>,
+    /// HTML file to write (written whole or not at all).
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Replace FILE if it exists.
+    #[arg(long)]
+    pub force: bool,
+    /// Chart every standardization of the titrant up to the ledger head, not only up to the run.
+    #[arg(long)]
+    pub history_to_head: bool,
 }
 
 /// `assize sign`

@@ -9,6 +9,8 @@
 mod args;
 mod commands;
 mod failure;
+mod html;
+mod outfile;
 mod output;
 mod passphrase;
 mod render;

@@ -16,6 +16,7 @@ pub mod chem;
 pub mod conformance;
 pub mod correction;
 pub mod documents;
+pub mod dossier;
 pub mod exceptions;
 pub mod explain;
 pub mod findings;

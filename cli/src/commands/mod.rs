@@ -4,6 +4,7 @@
 mod checkpoint;
 mod create;
 mod demo;
+mod dossier;
 mod entries;
 mod explain;
 mod history;
@@ -41,6 +42,7 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Exceptions(args) => review::exceptions(cli, args),
         Command::Explain(args) => explain::run(cli, args),
         Command::History(args) => history::run(cli, args),
+        Command::Dossier(args) => dossier::run(cli, args),
         Command::Sign(args) => review::sign(cli, args),
         Command::Periodic(args) => periodic::run(cli, args),
         Command::Demo(args) => demo::run(cli, args),
