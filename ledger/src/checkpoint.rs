@@ -1,21 +1,30 @@
 //! Signed checkpoints of the head, kept outside the ledger file.
 //!
 //! Truncation or rollback of a file cannot be seen from inside it. A checkpoint records the
-//! ledger id, a sequence number and the entry hash there, signed by an enrolled person; a
-//! ledger that no longer holds that entry, or holds a different one, fails to extend it. The
-//! text form is a few `name value` lines; the short code (`seq-xxxx-xxxx-xxxx-xxxx`, the first
-//! 64 bits of the hash) is for a paper logbook and checks the same thing without a signature.
+//! ledger id, a sequence number and the entry hash there, and (version 2) the root of the
+//! ledger's RFC 9162 Merkle tree over the first `seq` entries, signed by an enrolled person; a
+//! ledger that no longer holds that entry, holds a different one, or whose tree of that size
+//! has another root, fails to extend it. The tree root is what lets an evidence bundle prove,
+//! with a logarithmic inclusion proof per entry, that its entries are in the ledger the
+//! checkpoint saw. The text form is a few `name value` lines; the short code
+//! (`seq-xxxx-xxxx-xxxx-xxxx`, the first 64 bits of the hash) is for a paper logbook and checks
+//! the head without a signature.
 //!
-//! Signed bytes: `"assize-checkpt1\0"` ‖ ledger id (16) ‖ seq (u64 BE) ‖ head hash (32) ‖
-//! made-at microseconds (i64 BE) ‖ signer id (u16 length + UTF-8) ‖ signer key (32).
+//! Signed bytes, version 1: `"assize-checkpt1\0"` ‖ ledger id (16) ‖ seq (u64 BE) ‖ head hash
+//! (32) ‖ made-at microseconds (i64 BE) ‖ signer id (u16 length + UTF-8) ‖ signer key (32).
+//! Version 2: the same fields under the tag `"assize-checkpt2\0"`, then the tree root (32).
+//! Version 1 checkpoints (no tree root) are still read and checked.
 
 use crate::signing::verify_strict;
 use crate::{EntryHash, PublicKey, Signer, Timestamp};
 use serde::Serialize;
 
-/// Domain tag of checkpoint signatures.
+/// Domain tag of version-1 checkpoint signatures (no tree root).
 pub const CHECKPOINT_TAG: &[u8; 16] = b"assize-checkpt1\0";
+/// Domain tag of version-2 checkpoint signatures (with the tree root).
+pub const CHECKPOINT_TAG_V2: &[u8; 16] = b"assize-checkpt2\0";
 const TEXT_FIRST_LINE: &str = "assize checkpoint v1";
+const TEXT_FIRST_LINE_V2: &str = "assize checkpoint v2";
 
 /// A signed statement that the ledger held `head` at `seq`.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize)]
@@ -33,6 +42,10 @@ pub struct Checkpoint {
     pub by: String,
     /// Key that signed it.
     pub key: PublicKey,
+    /// Root of the ledger's Merkle tree over entries 1..=seq (version 2; `None` in a
+    /// version-1 checkpoint).
+    #[serde(serialize_with = "hex_option")]
+    pub tree_root: Option<[u8; 32]>,
     /// Signature over the bytes described in the module header.
     #[serde(serialize_with = "hex_bytes")]
     pub signature: [u8; 64],
@@ -42,12 +55,21 @@ fn hex_bytes<S: serde::Serializer, const N: usize>(v: &[u8; N], s: S) -> Result<
     s.serialize_str(&hex::encode(v))
 }
 
+fn hex_option<S: serde::Serializer>(v: &Option<[u8; 32]>, s: S) -> Result<S::Ok, S::Error> {
+    match v {
+        Some(root) => s.serialize_str(&hex::encode(root)),
+        None => s.serialize_none(),
+    }
+}
+
 impl Checkpoint {
-    /// Signs a checkpoint of `head` at `seq`.
+    /// Signs a checkpoint of `head` at `seq`, with the tree root over entries 1..=seq when
+    /// given (version 2) or without (version 1).
     pub fn sign(
         ledger_id: [u8; 16],
         seq: u64,
         head: EntryHash,
+        tree_root: Option<[u8; 32]>,
         made_at: Timestamp,
         signer: &Signer,
     ) -> Checkpoint {
@@ -58,6 +80,7 @@ impl Checkpoint {
             made_at,
             by: signer.person().to_string(),
             key: signer.public_key(),
+            tree_root,
             signature: [0; 64],
         };
         checkpoint.signature = signer.sign_bytes(&checkpoint.signed_bytes());
@@ -66,8 +89,11 @@ impl Checkpoint {
 
     /// The exact bytes the signature covers.
     pub fn signed_bytes(&self) -> Vec<u8> {
-        let mut bytes = Vec::with_capacity(16 + 16 + 8 + 32 + 8 + 2 + self.by.len() + 32);
-        bytes.extend_from_slice(CHECKPOINT_TAG);
+        let mut bytes = Vec::with_capacity(16 + 16 + 8 + 32 + 8 + 2 + self.by.len() + 32 + 32);
+        bytes.extend_from_slice(match self.tree_root {
+            Some(_) => CHECKPOINT_TAG_V2,
+            None => CHECKPOINT_TAG,
+        });
         bytes.extend_from_slice(&self.ledger_id);
         bytes.extend_from_slice(&self.seq.to_be_bytes());
         bytes.extend_from_slice(&self.head.0);
@@ -75,6 +101,9 @@ impl Checkpoint {
         bytes.extend_from_slice(&(self.by.len() as u16).to_be_bytes());
         bytes.extend_from_slice(self.by.as_bytes());
         bytes.extend_from_slice(&self.key.0);
+        if let Some(root) = &self.tree_root {
+            bytes.extend_from_slice(root);
+        }
         bytes
     }
 
@@ -91,8 +120,12 @@ impl Checkpoint {
 
     /// The text file form.
     pub fn to_text(&self) -> String {
+        let (first_line, tree) = match &self.tree_root {
+            Some(root) => (TEXT_FIRST_LINE_V2, format!("tree {}\n", hex::encode(root))),
+            None => (TEXT_FIRST_LINE, String::new()),
+        };
         format!(
-            "{TEXT_FIRST_LINE}\nledger {}\nseq {}\nhead {}\nmade {}\nby {}\nkey {}\nsignature {}\ncode {}\n",
+            "{first_line}\nledger {}\nseq {}\nhead {}\n{tree}made {}\nby {}\nkey {}\nsignature {}\ncode {}\n",
             hex::encode(self.ledger_id),
             self.seq,
             self.head,
@@ -107,9 +140,15 @@ impl Checkpoint {
     /// Parses the text file form.
     pub fn parse_text(text: &str) -> Result<Checkpoint, String> {
         let mut lines = text.lines().map(str::trim).filter(|l| !l.is_empty());
-        if lines.next() != Some(TEXT_FIRST_LINE) {
-            return Err(format!("does not start with {TEXT_FIRST_LINE:?}"));
-        }
+        let version_2 = match lines.next() {
+            Some(TEXT_FIRST_LINE) => false,
+            Some(TEXT_FIRST_LINE_V2) => true,
+            _ => {
+                return Err(format!(
+                    "does not start with {TEXT_FIRST_LINE_V2:?} (or {TEXT_FIRST_LINE:?})"
+                ))
+            }
+        };
         let mut fields = std::collections::BTreeMap::new();
         for line in lines {
             let (name, value) = line
@@ -133,6 +172,13 @@ impl Checkpoint {
             made_at: Timestamp::parse_rfc3339(field("made")?).ok_or_else(|| bad("made"))?,
             by: field("by")?.to_string(),
             key: PublicKey::from_hex(field("key")?).ok_or_else(|| bad("key"))?,
+            tree_root: if version_2 {
+                Some(hex_array(field("tree")?).ok_or_else(|| bad("tree"))?)
+            } else if fields.contains_key("tree") {
+                return Err("field tree belongs to a version 2 checkpoint".into());
+            } else {
+                None
+            },
             signature: hex_array(field("signature")?).ok_or_else(|| bad("signature"))?,
         };
         if checkpoint.seq == 0 {
@@ -216,9 +262,60 @@ mod tests {
             [1; 16],
             42,
             EntryHash::digest(b"head"),
+            Some([9; 32]),
             Timestamp(1_795_000_000_123_456),
             &signer,
         )
+    }
+
+    #[test]
+    fn version_1_still_reads_and_verifies_and_the_versions_do_not_mix() {
+        let signer = Signer::from_secret("q.adeyemi", &[5; 32]);
+        let v1 = Checkpoint::sign(
+            [1; 16],
+            42,
+            EntryHash::digest(b"head"),
+            None,
+            Timestamp(1_795_000_000_123_456),
+            &signer,
+        );
+        let text = v1.to_text();
+        assert!(text.starts_with("assize checkpoint v1\n"));
+        assert!(!text.contains("\ntree "));
+        let parsed = Checkpoint::parse_text(&text).unwrap();
+        assert_eq!(parsed, v1);
+        assert!(parsed.signature_valid());
+        // A tree root added to a version-1 signature does not verify, and a version-1 text
+        // with a tree line does not parse.
+        let mut grafted = v1.clone();
+        grafted.tree_root = Some([9; 32]);
+        assert!(!grafted.signature_valid());
+        let with_tree = text.replace("made ", &format!("tree {}\nmade ", hex::encode([9u8; 32])));
+        assert!(Checkpoint::parse_text(&with_tree).is_err());
+        // Stripping the root from a version-2 checkpoint does not verify either.
+        let mut stripped = sample();
+        stripped.tree_root = None;
+        assert!(!stripped.signature_valid());
+    }
+
+    #[test]
+    fn version_2_binds_the_tree_root() {
+        let c = sample();
+        assert!(c.to_text().starts_with("assize checkpoint v2\n"));
+        let mut other_root = c.clone();
+        other_root.tree_root = Some([8; 32]);
+        assert!(!other_root.signature_valid());
+        let text = c
+            .to_text()
+            .replace(&hex::encode([9u8; 32]), &hex::encode([8u8; 32]));
+        assert!(!Checkpoint::parse_text(&text).unwrap().signature_valid());
+        let no_tree_line: String = c
+            .to_text()
+            .lines()
+            .filter(|l| !l.starts_with("tree "))
+            .map(|l| format!("{l}\n"))
+            .collect();
+        assert!(Checkpoint::parse_text(&no_tree_line).is_err());
     }
 
     #[test]

@@ -292,10 +292,18 @@ impl Ledger {
                 ),
             });
         }
+        // Version 2 (with the tree root) wherever the file has its tree; a schema-1 file
+        // opened read-write has been given one, so only a read-only schema-1 file gets v1.
+        let tree_root = if self.store.has_tree() {
+            Some(merkle::tree_root(&self.store, head.seq)?)
+        } else {
+            None
+        };
         Ok(Checkpoint::sign(
             ledger_id,
             head.seq,
             head.hash,
+            tree_root,
             self.clock.now(),
             signer,
         ))

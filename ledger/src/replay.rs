@@ -14,7 +14,7 @@
 
 use crate::checkpoint::{Checkpoint, CheckpointCode};
 use crate::kinds::REGISTRY_KINDS;
-use crate::merkle::{leaf_hash, node_hash};
+use crate::merkle::{self, leaf_hash, node_hash};
 use crate::registry::{AuthorityIssue, Registry};
 use crate::signing::{failing_signatures, signed_message, verify_strict, SignatureJob};
 use crate::store::{Head, NodeScan, RowRead, Store, StoredNode};
@@ -29,6 +29,8 @@ const BATCH_SIZE: usize = 256;
 
 /// A state of the ledger seen earlier, that the ledger must still extend.
 #[derive(Clone, Debug)]
+// A handful of anchors per replay at most: boxing the checkpoint would only burden callers.
+#[allow(clippy::large_enum_variant)]
 pub enum Anchor {
     /// A signed checkpoint.
     Checkpoint(Checkpoint),
@@ -160,6 +162,16 @@ pub enum Problem {
         /// Recomputed hash in the ledger.
         found: EntryHash,
     },
+    /// A version-2 checkpoint whose tree root is not the root of the stored tree of that
+    /// size: the entries it covered were rewritten (or the tree was).
+    AnchorTreeDiffers {
+        /// Sequence number of the anchor.
+        anchor_seq: u64,
+        /// Root the checkpoint holds, hex.
+        anchored: String,
+        /// Root of the stored tree over the same entries, hex.
+        found: String,
+    },
     /// A checkpoint whose signature fails or whose signer was not enrolled with that key.
     AnchorSignatureInvalid {
         /// Sequence number of the anchor.
@@ -202,7 +214,8 @@ impl Problem {
             MalformedRow { seq, .. } => Some(*seq),
             AnchorOtherLedger { anchor_seq }
             | AnchorSignatureInvalid { anchor_seq, .. }
-            | AnchorHashDiffers { anchor_seq, .. } => Some(*anchor_seq),
+            | AnchorHashDiffers { anchor_seq, .. }
+            | AnchorTreeDiffers { anchor_seq, .. } => Some(*anchor_seq),
             AnchorBeyondHead { head_seq, .. } => Some(*head_seq + 1),
             TreeNodeMismatch { level, index, .. } => Some(first_seq_under(*level, *index)),
         }
@@ -272,6 +285,12 @@ impl std::fmt::Display for Problem {
             AnchorSignatureInvalid { anchor_seq, detail } => {
                 write!(f, "checkpoint at {anchor_seq}: {detail}")
             }
+            AnchorTreeDiffers { anchor_seq, anchored, found } => write!(
+                f,
+                "checkpoint at {anchor_seq} saw tree root {}, the ledger's tree of that size has {}: entries it covered were rewritten",
+                short_hex(anchored),
+                short_hex(found)
+            ),
             TreeNodeMismatch { level, index, expected, found } => {
                 write!(f, "merkle tree node at level {level}, index {index}: ")?;
                 let source = if *level == 0 { "its entry's hash" } else { "the chain" };
@@ -395,6 +414,7 @@ pub fn replay_observed(
         result
     });
     walked?;
+    check_anchored_tree_roots(store, &mut walk, &options.anchors)?;
     for seqs in failure_receiver.iter() {
         for seq in seqs {
             walk.add(Problem::SignatureInvalid {
@@ -404,6 +424,43 @@ pub fn replay_observed(
         }
     }
     Ok(walk.finish(store.head()?))
+}
+
+/// Compares each version-2 checkpoint's tree root with the stored tree of its size (the walk
+/// has just checked the stored nodes against the chain). Files without a tree, and anchors
+/// beyond the last entry (reported by the walk), are left alone.
+fn check_anchored_tree_roots(
+    store: &Store,
+    walk: &mut Walk<'_>,
+    anchors: &[Anchor],
+) -> crate::error::Result<()> {
+    if !store.has_tree() {
+        return Ok(());
+    }
+    let leaves = walk.expected_seq.saturating_sub(1);
+    for anchor in anchors {
+        let Anchor::Checkpoint(checkpoint) = anchor else {
+            continue;
+        };
+        let Some(anchored) = checkpoint.tree_root else {
+            continue;
+        };
+        if checkpoint.seq > leaves {
+            continue;
+        }
+        // A missing node was reported by the walk already; nothing to compare then.
+        let Ok(found) = merkle::tree_root(store, checkpoint.seq) else {
+            continue;
+        };
+        if found != anchored {
+            walk.add(Problem::AnchorTreeDiffers {
+                anchor_seq: checkpoint.seq,
+                anchored: hex::encode(anchored),
+                found: hex::encode(found),
+            });
+        }
+    }
+    Ok(())
 }
 
 /// Reads every stored row once, in order, judging each entry and (when the file has a tree)

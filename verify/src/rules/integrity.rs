@@ -27,6 +27,7 @@ pub fn code_of(problem: &Problem) -> Code {
         Problem::AnchorOtherLedger { .. }
         | Problem::AnchorBeyondHead { .. }
         | Problem::AnchorHashDiffers { .. }
+        | Problem::AnchorTreeDiffers { .. }
         | Problem::AnchorSignatureInvalid { .. } => Code::CheckpointNotExtended,
         Problem::TimeWentBack { .. } => Code::RecordTimeBack,
     }
