@@ -59,6 +59,8 @@ pub enum Command {
     Add(AddArgs),
     /// Record every entry of a batch file (TOML) in one transaction: all or none.
     Import(ImportArgs),
+    /// Pair a balance printout with a run's keyed weighings and record the captured readings.
+    Capture(CaptureArgs),
     /// Correct values of an earlier lab entry, with a reason; the original stays in the ledger.
     Correct(CorrectArgs),
     /// Recompute a run from its raw records: each replicate, mean, RSD, uncertainty budget.
@@ -260,6 +262,27 @@ pub struct ImportArgs {
     /// Key file of the person recording the entries.
     #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
     pub key: PathBuf,
+}
+
+/// `assize capture`
+#[derive(Debug, Args)]
+pub struct CaptureArgs {
+    /// Balance printout: one reading a line (UTC time, balance id, digits, unit, S or U).
+    pub file: PathBuf,
+    /// The run whose keyed weighings the printed readings belong to.
+    #[arg(long, value_name = "RUN")]
+    pub run: String,
+    /// Show the pairing and record nothing (no key needed).
+    #[arg(long)]
+    pub dry_run: bool,
+    /// Key file of the analyst importing the printout, who signs every captured weighing.
+    #[arg(
+        long,
+        env = "ASSIZE_KEY",
+        value_name = "FILE",
+        required_unless_present = "dry_run"
+    )]
+    pub key: Option<PathBuf>,
 }
 
 /// `assize recompute`

@@ -12,6 +12,7 @@ mod failure;
 mod html;
 mod outfile;
 mod output;
+mod pairing;
 mod passphrase;
 mod render;
 mod report;

@@ -8,7 +8,9 @@
 //! `keys/garbage.key` (not a key file); `fixture.ledger`; `newer.ledger` (schema version 2);
 //! `notes.txt` (not a ledger); adopted `method.toml` (permanganate) and `policy.toml`, a balance
 //! `B1`, reference lot `OX-1`, titrant `KMN-1` and standardization run `STD-1` (entries 5-10);
-//! `unbalanced-method.toml` and `bad-batch.toml` (third record bad). `{dir}` in a case stands for
+//! `unbalanced-method.toml` and `bad-batch.toml` (third record bad); balance printouts
+//! `printout.txt` (two readings of `B1`), `bad-printout.txt` (a comma in line 3's digits) and
+//! `foreign-printout.txt` (line 2 names a balance the ledger lacks). `{dir}` in a case stands for
 //! the fixture directory.
 //! Unless a case says `changes_ledger = true`, the ledger files must be byte-for-byte
 //! unchanged afterwards.
@@ -266,6 +268,9 @@ fn lab_fixture(dir: &Path) {
         .concat(),
     );
     std::fs::write(dir.join("bad-batch.toml"), BAD_BATCH).expect("write bad batch");
+    for (name, text) in PRINTOUTS {
+        std::fs::write(dir.join(name), text).expect("write printout");
+    }
 }
 
 fn copy_dir(from: &Path, to: &Path) {
@@ -481,3 +486,25 @@ first_at = "2026-11-23T08:14:10Z"
 second = "18.1616 g"
 second_at = "2026-11-23T08:15:02Z"
 "#;
+
+/// Balance printouts (invented readings of the fixture's balance `B1`, and of `B9`, which the
+/// ledger does not have).
+const PRINTOUTS: [(&str, &str); 3] = [
+    (
+        "printout.txt",
+        "# invented printout of balance B1\n\
+         2026-11-23T08:14:12Z  B1  18.4127  g  S\n\
+         2026-11-23T08:15:04Z  B1  18.1616  g  S\n",
+    ),
+    (
+        "bad-printout.txt",
+        "# invented printout of balance B1\n\
+         2026-11-23T08:14:12Z  B1  18.4127  g  S\n\
+         2026-11-23T08:15:04Z  B1  18,1616  g  S\n",
+    ),
+    (
+        "foreign-printout.txt",
+        "2026-11-23T08:14:12Z  B1  18.4127  g  S\n\
+         2026-11-23T08:15:04Z  B9  18.1616  g  S\n",
+    ),
+];

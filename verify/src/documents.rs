@@ -378,6 +378,12 @@ pub struct RecordsPolicy {
     /// 3 when not stated.
     #[serde(default = "default_readings_per_timestamp")]
     pub max_readings_per_timestamp: u32,
+    /// How far apart in time a keyed reading and the balance's printed reading may be and
+    /// still be taken for the same observation, seconds, either side; 120 when not stated
+    /// (keyed times are often rounded to the minute, and the balance's clock is not the
+    /// computer's).
+    #[serde(default = "default_capture_pairing")]
+    pub capture_pairing_seconds: u32,
 }
 
 fn default_clock_tolerance() -> u32 {
@@ -386,6 +392,14 @@ fn default_clock_tolerance() -> u32 {
 
 fn default_readings_per_timestamp() -> u32 {
     3
+}
+
+/// Seconds either side within which a printed reading pairs with a keyed one, when a policy
+/// does not say.
+pub const DEFAULT_CAPTURE_PAIRING_SECONDS: u32 = 120;
+
+fn default_capture_pairing() -> u32 {
+    DEFAULT_CAPTURE_PAIRING_SECONDS
 }
 
 /// Replicate agreement rules.

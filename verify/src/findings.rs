@@ -161,7 +161,7 @@ rules! {
         "Assess whether the fault could have been present when this result was weighed, and record the decision.";
     KeyedDiffersFromCaptured = "CAP-01", Blocking, "keyed reading differs from the captured instrument reading",
         "FDA Data Integrity Q&A (2018): the printout is the original record",
-        "The captured reading is the original: correct the keyed value with a reason, and recompute.";
+        "The captured reading is the original: correct the keyed value with a reason, and recompute; the message names the likely keying slip to look for.";
     KeyedWhereCaptureExpected = "CAP-02", Review, "hand-keyed reading where the method expects instrument capture",
         "method; ALCOA+ original",
         "Check the keyed reading against the balance printout and note the check.";

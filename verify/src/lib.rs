@@ -11,6 +11,7 @@
 #![deny(missing_docs)]
 
 pub mod assemble;
+pub mod capture_import;
 pub mod catalog;
 pub mod chem;
 pub mod conformance;

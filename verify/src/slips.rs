@@ -37,7 +37,7 @@
 //! given.
 
 use crate::printout::PrintedReading;
-use crate::quantity::{Reading, Unit};
+use crate::quantity::{Dimension, Reading, Unit};
 use assize_ledger::Timestamp;
 use rust_decimal::Decimal;
 use std::iter::once;
@@ -239,6 +239,87 @@ pub fn classify(keyed: &Reading, captured: &Reading) -> Option<Slip> {
             difference: difference(keyed, captured),
         });
     Some(slip)
+}
+
+/// Whether a keyed reading says something other than the captured one: another unit, or
+/// another value. Digits that differ only in trailing zeros (`12.34 g` for `12.340 g`) say the
+/// same mass and do not differ here, though [`classify`] names the dropped zero.
+pub fn differ_in_value(keyed: &Reading, captured: &Reading) -> bool {
+    keyed.unit != captured.unit || base_value(keyed) != base_value(captured)
+}
+
+impl Slip {
+    /// A short name of the class, for scripts: `transposed-digits`, `wrong-unit`,
+    /// `shifted-decimal`, `dropped-digit`, `extra-digit`, `wrong-balance` or
+    /// `unexplained-difference`.
+    pub fn class(&self) -> &'static str {
+        match self {
+            Slip::TransposedDigits { .. } => "transposed-digits",
+            Slip::WrongUnit { .. } => "wrong-unit",
+            Slip::ShiftedDecimal { .. } => "shifted-decimal",
+            Slip::DroppedDigit { .. } => "dropped-digit",
+            Slip::ExtraDigit { .. } => "extra-digit",
+            Slip::WrongBalance { .. } => "wrong-balance",
+            Slip::UnexplainedDifference { .. } => "unexplained-difference",
+        }
+    }
+
+    /// The slip with its evidence in words, for a reviewer; `dimension` is what the readings
+    /// measure (it names the quantity and the unit of an unexplained difference).
+    pub fn describe(&self, dimension: Dimension) -> String {
+        let quantity = match dimension {
+            Dimension::Mass => "mass",
+            Dimension::Volume => "volume",
+        };
+        match self {
+            Slip::TransposedDigits {
+                positions: [i, j],
+                captured_digits: [a, b],
+            } => format!("transposed digits: {a}{b} keyed as {b}{a} (digit places {i} and {j})"),
+            Slip::WrongUnit {
+                keyed_unit,
+                captured_unit,
+                number_unit,
+            } => {
+                if keyed_unit != captured_unit && number_unit == captured_unit {
+                    format!("wrong unit: the displayed number keyed in {keyed_unit} instead of {captured_unit}")
+                } else if number_unit == keyed_unit {
+                    format!("wrong unit: the {quantity} converted to {keyed_unit}, not as displayed in {captured_unit}")
+                } else {
+                    format!("wrong unit: the number keyed is the {quantity} in {number_unit}, written as {keyed_unit}")
+                }
+            }
+            Slip::ShiftedDecimal { power_of_ten } => {
+                let direction = if *power_of_ten > 0 { "right" } else { "left" };
+                let places = power_of_ten.unsigned_abs();
+                let plural = if places == 1 { "" } else { "s" };
+                format!("shifted decimal: the point moved {places} place{plural} {direction} (keyed = captured × 10^{power_of_ten})")
+            }
+            Slip::DroppedDigit { position, digit } => {
+                format!("dropped digit: the {digit} at digit place {position} left out")
+            }
+            Slip::ExtraDigit { position, digit } => {
+                format!("extra digit: a {digit} added at digit place {position}")
+            }
+            Slip::WrongBalance { balance_id, .. } => {
+                format!("wrong balance: the keyed reading is what balance {balance_id} printed")
+            }
+            Slip::UnexplainedDifference {
+                difference: Some(difference),
+            } => {
+                let base = Unit::of_dimension(dimension)
+                    .find(|unit| unit.to_base_factor() == Decimal::ONE)
+                    .expect("every dimension has a base unit");
+                format!(
+                    "no common keying slip explains it (they differ by {} {base})",
+                    difference.normalize()
+                )
+            }
+            Slip::UnexplainedDifference { difference: None } => {
+                "no common keying slip explains it".to_string()
+            }
+        }
+    }
 }
 
 /// Whether two readings are at most `tolerance_seconds` apart.
@@ -930,5 +1011,105 @@ mod tests {
                 },
             }
         );
+    }
+
+    #[test]
+    fn describes_each_class_with_its_evidence() {
+        // Each expected text restates the evidence worked out by hand for the pair.
+        let cases = [
+            // 12.34 → 12.43: the 3rd and 4th digits (3, 4) swapped.
+            (
+                slip("12.43 g", "12.34 g"),
+                "transposed digits: 34 keyed as 43 (digit places 3 and 4)",
+            ),
+            // 150.21 displayed in mg, keyed with g: the number is the displayed one.
+            (
+                slip("150.21 g", "150.21 mg"),
+                "wrong unit: the displayed number keyed in g instead of mg",
+            ),
+            // 0.15021 g displayed; 150.21 is that mass in mg, keyed with g.
+            (
+                slip("150.21 g", "0.15021 g"),
+                "wrong unit: the number keyed is the mass in mg, written as g",
+            ),
+            // 150.21 mg displayed; 0.15021 g is the same mass converted.
+            (
+                slip("0.15021 g", "150.21 mg"),
+                "wrong unit: the mass converted to g, not as displayed in mg",
+            ),
+            // 15.021 = 0.15021 × 10^2: the point moved two places right.
+            (
+                slip("15.021 g", "0.15021 g"),
+                "shifted decimal: the point moved 2 places right (keyed = captured × 10^2)",
+            ),
+            // 1.234 = 12.34 × 10^-1: one place left.
+            (
+                slip("1.234 g", "12.34 g"),
+                "shifted decimal: the point moved 1 place left (keyed = captured × 10^-1)",
+            ),
+            // 12.3456 without its 5th digit (5) is 12.346.
+            (
+                slip("12.346 g", "12.3456 g"),
+                "dropped digit: the 5 at digit place 5 left out",
+            ),
+            // 102.5 is 12.5 with a 0 put in as its 2nd digit.
+            (
+                slip("102.5 g", "12.5 g"),
+                "extra digit: a 0 added at digit place 2",
+            ),
+            // |12.3457 − 12.3456| = 0.0001 g.
+            (
+                slip("12.3457 g", "12.3456 g"),
+                "no common keying slip explains it (they differ by 0.0001 g)",
+            ),
+        ];
+        for (slip, text) in cases {
+            assert_eq!(slip.describe(Dimension::Mass), text, "{slip:?}");
+        }
+        let other = Slip::WrongBalance {
+            other: 3,
+            balance_id: "BAL-7".into(),
+        };
+        assert_eq!(
+            other.describe(Dimension::Mass),
+            "wrong balance: the keyed reading is what balance BAL-7 printed"
+        );
+        // A burette difference is in mL: |20.05 − 20.15| = 0.10 mL, written without the
+        // trailing zero.
+        assert_eq!(
+            slip("20.05 mL", "20.15 mL").describe(Dimension::Volume),
+            "no common keying slip explains it (they differ by 0.1 mL)"
+        );
+        assert_eq!(
+            slip("20.05 mL", "20.40 g").describe(Dimension::Volume),
+            "no common keying slip explains it"
+        );
+    }
+
+    #[test]
+    fn names_each_class_for_scripts() {
+        assert_eq!(slip("12.43 g", "12.34 g").class(), "transposed-digits");
+        assert_eq!(slip("150.21 g", "150.21 mg").class(), "wrong-unit");
+        assert_eq!(slip("15.021 g", "0.15021 g").class(), "shifted-decimal");
+        assert_eq!(slip("12.346 g", "12.3456 g").class(), "dropped-digit");
+        assert_eq!(slip("102.5 g", "12.5 g").class(), "extra-digit");
+        assert_eq!(
+            slip("12.3457 g", "12.3456 g").class(),
+            "unexplained-difference"
+        );
+    }
+
+    #[test]
+    fn differ_in_value_ignores_trailing_zeros_but_not_units() {
+        // 12.34 g and 12.340 g are the same mass; classify still names the dropped zero.
+        assert!(!differ_in_value(&reading("12.34 g"), &reading("12.340 g")));
+        assert!(classify(&reading("12.34 g"), &reading("12.340 g")).is_some());
+        // The same mass in another unit is not the reading as displayed.
+        assert!(differ_in_value(
+            &reading("0.15021 g"),
+            &reading("150.21 mg")
+        ));
+        assert!(differ_in_value(&reading("12.43 g"), &reading("12.34 g")));
+        assert!(!differ_in_value(&reading("12.34 g"), &reading("12.34 g")));
     }
 }

@@ -1,6 +1,7 @@
 //! One module per verb; each turns parsed arguments into library calls and hands the result to
 //! `render`/`output`.
 
+mod capture;
 mod checkpoint;
 mod create;
 mod demo;
@@ -35,6 +36,7 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Adopt(args) => lab::adopt(cli, args),
         Command::Add(args) => lab::add(cli, args),
         Command::Import(args) => lab::import(cli, args),
+        Command::Capture(args) => capture::run(cli, args),
         Command::Correct(args) => lab::correct(cli, args),
         Command::Recompute(args) => recompute::run(cli, args),
         Command::Replay(args) => replay::run(cli, args),

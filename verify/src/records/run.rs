@@ -95,6 +95,19 @@ pub enum Portion {
     BlankTitrant,
 }
 
+impl Portion {
+    /// What was weighed, in plain words for messages: `primary standard`, `sample`,
+    /// `titrant` or `blank titrant`.
+    pub fn words(self) -> &'static str {
+        match self {
+            Portion::PrimaryStandard => "primary standard",
+            Portion::Sample => "sample",
+            Portion::Titrant => "titrant",
+            Portion::BlankTitrant => "blank titrant",
+        }
+    }
+}
+
 /// How two readings give a net mass.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]

@@ -4,9 +4,13 @@
 //! doubt.
 //!
 //! Days are UTC calendar days. Each weighing is judged by the policy its run names; each routine
-//! check by the policy adopted most recently before it.
+//! check by the policy adopted most recently before it. A captured weighing that repeats its
+//! keyed twin (`repeats_keyed_twin`) is the same observation and is judged once, on the keyed
+//! weighing.
 
-use super::{day_of, entry_ref, setting, weighings_of, when, Evidence, RunView};
+use super::{
+    day_of, entry_ref, repeats_keyed_twin, setting, weighings_of, when, Evidence, RunView,
+};
 use crate::catalog::{CatalogEntry, LabBody};
 use crate::findings::{Code, Finding};
 use crate::records::{Balance, BalanceCheck, Calibration, Weighing};
@@ -150,8 +154,11 @@ impl std::fmt::Display for BalanceName<'_> {
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let balances = Balances::gather(evidence);
     for run in evidence.judged_runs() {
-        for (entry, weighing) in weighings_of(evidence.catalog, run) {
-            fitness(&balances, run, entry, &weighing, out);
+        let weighings = weighings_of(evidence.catalog, run);
+        for (entry, weighing) in &weighings {
+            if !repeats_keyed_twin(weighing, &weighings) {
+                fitness(&balances, run, entry, weighing, out);
+            }
         }
     }
     if !evidence.focused() {

@@ -25,7 +25,7 @@ use crate::assemble::{recompute_every_run, Recomputed};
 use crate::catalog::{Catalog, CatalogEntry, LabBody};
 use crate::documents::{LabPolicy, Method};
 use crate::findings::{EntryRef, Finding};
-use crate::records::{DocumentKind, Replicate, Run, RunKind, Sample, SignOff, Weighing};
+use crate::records::{DocumentKind, Replicate, Run, RunKind, Sample, SignOff, Source, Weighing};
 use assize_ledger::Record;
 use assize_ledger::{EntryHash, Timestamp};
 use foldhash::{HashMap, HashMapExt};
@@ -398,6 +398,26 @@ pub fn weighings_of<'a>(
             _ => None,
         })
         .collect()
+}
+
+/// Whether a captured weighing repeats a keyed twin among `weighings` (same replicate, portion
+/// and balance, the same net mass, first read the same day): it is then the original of the
+/// same observation, and a rule that judges the observation (the balance's fitness, the
+/// portion's size) judges it once, on the keyed weighing. A captured weighing that differs
+/// from every keyed twin is judged on its own, as the original it is.
+pub fn repeats_keyed_twin(
+    weighing: &Weighing,
+    weighings: &[(&CatalogEntry, Cow<'_, Weighing>)],
+) -> bool {
+    weighing.source == Source::Captured
+        && weighings.iter().any(|(_, keyed)| {
+            keyed.source == Source::Keyed
+                && keyed.replicate == weighing.replicate
+                && keyed.portion == weighing.portion
+                && keyed.balance == weighing.balance
+                && keyed.net_grams() == weighing.net_grams()
+                && day_of(keyed.first_at) == day_of(weighing.first_at)
+        })
 }
 
 /// Whether a run is an assay.

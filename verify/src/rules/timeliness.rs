@@ -1,7 +1,8 @@
 //! Timeliness findings (`TIM-*`): entries recorded later than the policy's contemporaneous
 //! window after what they record, and many readings of one run sharing one time stamp.
-//! Captured readings are exempt from the window: the instrument's own record is the original,
-//! whenever it is imported.
+//! Captured readings are exempt from the window and from the count of shared time stamps: the
+//! instrument's own record is the original, whenever it is imported, and carries the times
+//! the balance printed.
 
 use super::{entry_ref, when, Evidence};
 use crate::catalog::{CatalogEntry, LabBody};
@@ -58,7 +59,9 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
                 }
             }
             match body.as_ref() {
-                LabBody::Weighing(w) => {
+                // A captured twin repeats the time of the keyed reading it is the original
+                // of; only readings typed by a person can be back-filled.
+                LabBody::Weighing(w) if w.source == Source::Keyed => {
                     stamps.entry(w.first_at).or_default().push(entry);
                     stamps.entry(w.second_at).or_default().push(entry);
                 }
