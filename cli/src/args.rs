@@ -75,6 +75,9 @@ pub enum Command {
     Explain(ExplainArgs),
     /// Every version of one record (as written, then each correction) and every sign-off on it.
     History(HistoryArgs),
+    /// Evidence bundles: one result's entries with proofs under a signed checkpoint, checked offline.
+    #[command(subcommand)]
+    Evidence(EvidenceCommand),
     /// Write one run's review dossier as a self-contained HTML page (prints, opens offline).
     Dossier(DossierArgs),
     /// Sign a run (or its result) as reviewed or approved (reviewer or QA).
@@ -118,6 +121,43 @@ pub struct HistoryArgs {
     /// The run with this id (its run entry).
     #[arg(long, value_name = "RUN")]
     pub run: Option<String>,
+}
+
+/// `assize evidence ...`
+#[derive(Debug, Subcommand)]
+pub enum EvidenceCommand {
+    /// Write the evidence bundle of one run's result (CBOR, signed by you, never overwritten
+    /// without --force).
+    Export(EvidenceExportArgs),
+    /// Check a bundle without the ledger and explain its result from it.
+    Check(EvidenceCheckArgs),
+}
+
+/// `assize evidence export`
+#[derive(Debug, Args)]
+pub struct EvidenceExportArgs {
+    /// Run id (or, with --entry, leave out).
+    #[arg(required_unless_present = "entry", conflicts_with = "entry")]
+    pub run: Option<String>,
+    /// The run this entry belongs to (its result, a weighing, the run entry itself).
+    #[arg(long, value_name = "SEQ")]
+    pub entry: Option<u64>,
+    /// Bundle file to write (written whole or not at all).
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Replace FILE if it exists.
+    #[arg(long)]
+    pub force: bool,
+    /// Key file of the person signing the bundle and its checkpoint.
+    #[arg(long, env = "ASSIZE_KEY", value_name = "FILE")]
+    pub key: PathBuf,
+}
+
+/// `assize evidence check`
+#[derive(Debug, Args)]
+pub struct EvidenceCheckArgs {
+    /// The bundle file.
+    pub file: PathBuf,
 }
 
 /// `assize explain`

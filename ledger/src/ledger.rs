@@ -409,7 +409,10 @@ fn refuse_altered_head(head: &Entry) -> Result<()> {
 /// Applies registry entries already in the ledger (judged when they were appended; replay
 /// re-judges them with their signatures). A stored entry that no longer makes sense means the
 /// file was altered, so appending stops until the ledger is verified.
-fn apply_stored_registry_entries(registry: &mut Registry, entries: &[Entry]) -> Result<()> {
+pub(crate) fn apply_stored_registry_entries(
+    registry: &mut Registry,
+    entries: &[Entry],
+) -> Result<()> {
     for entry in entries {
         let change = registry
             .check_change(

@@ -11,6 +11,7 @@
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
 
+pub mod bundle;
 pub mod checkpoint;
 pub mod clock;
 pub mod codec;

@@ -6,6 +6,7 @@ use assize_ledger::records::Enrolment;
 use assize_ledger::replay::{IntegrityReport, ReplayOptions};
 use assize_ledger::{KindRules, Ledger, OpenMode, Role, Signer, SystemClock};
 use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
 use std::sync::Arc;
 
 /// Fixed test secret of the founding QA person.
@@ -93,5 +94,113 @@ impl Jitter {
         self.0 ^= self.0 << 25;
         self.0 ^= self.0 >> 27;
         self.0.wrapping_mul(0x2545_f491_4f6c_dd1d) % bound
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Driving the real binary.
+
+/// Runs `assize` in `dir` with `args` (no ledger or key from the environment).
+pub fn run_assize(dir: &Path, args: &[&str]) -> Output {
+    Command::new(assize_binary())
+        .current_dir(dir)
+        .args(args)
+        .env_remove("ASSIZE_LEDGER")
+        .env_remove("ASSIZE_KEY")
+        .output()
+        .expect("run assize")
+}
+
+pub fn assize(dir: &Path, args: &[&str]) -> String {
+    let out = run_assize(dir, args);
+    assert!(
+        out.status.success(),
+        "assize {args:?} failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    String::from_utf8(out.stdout).expect("utf-8 output")
+}
+
+pub fn json(text: &str) -> serde_json::Value {
+    serde_json::from_str(text).expect("JSON output")
+}
+
+/// Sequence number of the ledger's last entry.
+pub fn head(dir: &Path) -> u64 {
+    let listed = json(&assize(
+        dir,
+        &[
+            "--json",
+            "--ledger",
+            "lab.ledger",
+            "entries",
+            "list",
+            "--limit",
+            "100000",
+        ],
+    ));
+    listed
+        .as_array()
+        .and_then(|entries| entries.last())
+        .and_then(|last| last["seq"].as_u64())
+        .expect("a ledger with entries")
+}
+
+/// A ledger `lab.ledger` in `dir` with a QA person (`qa.key`) and the analyst (`analyst.key`,
+/// passphrase in `pass.txt`) who entered the sample week of `samples/lab/` (`root` is the
+/// workspace root).
+pub fn lab_with_the_sample_week(dir: &Path, root: &Path) {
+    std::fs::write(dir.join("pass.txt"), "capture test passphrase\n").expect("passphrase");
+    let p = ["--passphrase-file", "pass.txt"];
+    for (person, file) in [("q.halden", "qa.key"), ("t.rasmilov", "analyst.key")] {
+        let args = [
+            "key",
+            "new",
+            "--person",
+            person,
+            "--out",
+            file,
+            "--kdf-memory-mib",
+            "8",
+        ];
+        assize(dir, &[&p[..], &args].concat());
+    }
+    let l = ["--ledger", "lab.ledger", "--passphrase-file", "pass.txt"];
+    let path = |relative: &str| root.join(relative).to_str().expect("path").to_string();
+    let (method, policy, batch) = (
+        path("policies/permanganate-peroxide.toml"),
+        path("policies/lab-policy.toml"),
+        path("samples/lab/permanganate-week-48.toml"),
+    );
+    let steps: [&[&str]; 5] = [
+        &[
+            "create",
+            "--lab",
+            "Capture Test Laboratory",
+            "--name",
+            "Quentin Halden",
+            "--key",
+            "qa.key",
+        ],
+        &[
+            "person",
+            "enrol",
+            "--id",
+            "t.rasmilov",
+            "--name",
+            "Teodor Rasmilov",
+            "--role",
+            "analyst",
+            "--from-key-file",
+            "analyst.key",
+            "--key",
+            "qa.key",
+        ],
+        &["adopt", "--method", &method, "--key", "qa.key"],
+        &["adopt", "--policy", &policy, "--key", "qa.key"],
+        &["import", &batch, "--key", "analyst.key"],
+    ];
+    for step in steps {
+        assize(dir, &[&l[..], step].concat());
     }
 }

@@ -14,6 +14,7 @@
 use crate::assemble::Recomputer;
 use crate::catalog::{Catalog, CatalogEntry, LabBody};
 use crate::exceptions::{changes, FieldChange};
+use crate::indexed::IndexedEntries;
 use crate::recompute::Outcome;
 use crate::records::{BalanceCheck, Calibration, Correction, Run, RunKind, Weighing};
 use crate::rules::day_of;
@@ -195,29 +196,51 @@ pub fn explain(ledger: &mut Ledger, target: &Target) -> Result<Explanation, Expl
     let head = ledger
         .head()?
         .ok_or_else(|| ExplainError::NotFound("the ledger is empty".into()))?;
-    let run = find_run(ledger, target)?;
     let registry = ledger.registry()?.clone();
+    explain_in(ledger.store(), (head.seq, head.hash), registry, target)
+}
+
+/// Explains the value of `target` from `entries` (a ledger's store, or an evidence bundle's
+/// entries), whose head is `head` (sequence number and hash) and whose registry of people and
+/// keys is `registry`.
+pub fn explain_in(
+    entries: &dyn IndexedEntries,
+    head: (u64, EntryHash),
+    registry: Registry,
+    target: &Target,
+) -> Result<Explanation, ExplainError> {
+    let run = find_run(entries, target)?;
     let mut reader = Reader {
-        ledger,
+        entries,
         registry,
         read: HashMap::new(),
         shown: BTreeSet::new(),
     };
     let explained = reader.run(&run, true)?;
     Ok(Explanation {
-        head_seq: head.seq,
-        head_hash: head.hash.to_hex(),
+        head_seq: head.0,
+        head_hash: head.1.to_hex(),
         run: explained,
         entries: reader.shown.into_iter().collect(),
     })
 }
 
+/// The lab entry at `seq`, or why there is none.
+fn lab_entry_at(entries: &dyn IndexedEntries, seq: u64) -> Result<Arc<CatalogEntry>, ExplainError> {
+    let entry = entries
+        .entry_at(seq)?
+        .ok_or_else(|| ExplainError::NotFound(format!("there is no entry {seq}")))?;
+    decoded(entry).ok_or_else(|| ExplainError::NotFound(format!("entry {seq} is not a lab entry")))
+}
+
 /// The run entry a target names.
-fn find_run(ledger: &Ledger, target: &Target) -> Result<Arc<CatalogEntry>, ExplainError> {
+fn find_run(
+    entries: &dyn IndexedEntries,
+    target: &Target,
+) -> Result<Arc<CatalogEntry>, ExplainError> {
     match target {
         Target::Entry(seq) => {
-            let entry = decoded(ledger.entry(*seq)?)
-                .ok_or_else(|| ExplainError::NotFound(format!("entry {seq} is not a lab entry")))?;
+            let entry = lab_entry_at(entries, *seq)?;
             let run_hash = match &entry.body {
                 LabBody::Run(_) => return Ok(entry),
                 body => body.run().ok_or_else(|| {
@@ -227,39 +250,41 @@ fn find_run(ledger: &Ledger, target: &Target) -> Result<Arc<CatalogEntry>, Expla
                     ))
                 })?,
             };
-            let seq = ledger
-                .store()
-                .seq_of_hash(&run_hash)?
+            let seq = entries
+                .seq_with_hash(&run_hash)?
                 .ok_or_else(|| ExplainError::NotFound(format!("run {run_hash} is missing")))?;
-            decoded(ledger.entry(seq)?)
-                .ok_or_else(|| ExplainError::NotFound(format!("entry {seq} is not a run")))
+            lab_entry_at(entries, seq)
+                .map_err(|_| ExplainError::NotFound(format!("entry {seq} is not a run")))
         }
-        Target::RunId(id) => run_by_id(ledger, id),
+        Target::RunId(id) => run_by_id(entries, id),
     }
 }
 
-/// The run with this id (the first recorded), read through the kind index page by page.
 /// The run recorded with `id`: through the label index when it has the id (each hit checked
-/// against the entry's own body), else by reading the run entries in order.
-pub(crate) fn run_by_id(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, ExplainError> {
-    let store = ledger.store();
-    for seq in store.labelled(Run::KIND, id)?.unwrap_or_default() {
-        if let Some(lab) = store.entry(seq)?.and_then(decoded) {
+/// against the entry's own body), else by reading the run entries in order (the first
+/// recorded with that id).
+pub(crate) fn run_by_id(
+    entries: &dyn IndexedEntries,
+    id: &str,
+) -> Result<Arc<CatalogEntry>, ExplainError> {
+    for seq in entries.labelled(Run::KIND, id)?.unwrap_or_default() {
+        if let Some(lab) = entries.entry_at(seq)?.and_then(decoded) {
             if matches!(&lab.body, LabBody::Run(r) if r.id == id) {
                 return Ok(lab);
             }
         }
     }
-    run_by_reading_runs(ledger, id)
+    run_by_reading_runs(entries, id)
 }
 
-fn run_by_reading_runs(ledger: &Ledger, id: &str) -> Result<Arc<CatalogEntry>, ExplainError> {
+fn run_by_reading_runs(
+    entries: &dyn IndexedEntries,
+    id: &str,
+) -> Result<Arc<CatalogEntry>, ExplainError> {
     const PAGE: usize = 4096;
     let mut after = 0;
     loop {
-        let page = ledger
-            .store()
-            .of_kind_between(Run::KIND, after, u64::MAX, PAGE)?;
+        let page = entries.of_kind_between(Run::KIND, after, u64::MAX, PAGE)?;
         let full = page.len() == PAGE;
         for entry in page {
             after = entry.seq;
@@ -283,7 +308,7 @@ pub(crate) fn decoded(entry: Entry) -> Option<Arc<CatalogEntry>> {
 
 /// Reads entries by index, remembering what it read and what it showed.
 struct Reader<'l> {
-    ledger: &'l mut Ledger,
+    entries: &'l dyn IndexedEntries,
     registry: Registry,
     /// Every lab entry read, decoded, by sequence number.
     read: HashMap<u64, Arc<CatalogEntry>>,
@@ -297,7 +322,7 @@ impl Reader<'_> {
         if let Some(entry) = self.read.get(&seq) {
             return Ok(Some(Arc::clone(entry)));
         }
-        let Some(entry) = decoded(self.ledger.entry(seq)?) else {
+        let Some(entry) = self.entries.entry_at(seq)?.and_then(decoded) else {
             return Ok(None);
         };
         self.read.insert(seq, Arc::clone(&entry));
@@ -306,7 +331,7 @@ impl Reader<'_> {
 
     /// Reads the entry stored under `hash`.
     fn by_hash(&mut self, hash: &EntryHash) -> Result<Option<Arc<CatalogEntry>>, ExplainError> {
-        match self.ledger.store().seq_of_hash(hash)? {
+        match self.entries.seq_with_hash(hash)? {
             Some(seq) => self.at(seq),
             None => Ok(None),
         }
@@ -315,7 +340,7 @@ impl Reader<'_> {
     /// The entries that name `hash`, in sequence order.
     fn naming(&mut self, hash: &EntryHash) -> Result<Vec<Arc<CatalogEntry>>, ExplainError> {
         let mut found = Vec::new();
-        for seq in self.ledger.store().referencing(hash)? {
+        for seq in self.entries.naming(hash)? {
             found.extend(self.at(seq)?);
         }
         Ok(found)
@@ -325,7 +350,7 @@ impl Reader<'_> {
     /// few, whatever else names the entry).
     fn corrections_of(&mut self, hash: &EntryHash) -> Result<Vec<Arc<CatalogEntry>>, ExplainError> {
         let mut found = Vec::new();
-        for seq in self.ledger.store().of_kind_naming(Correction::KIND, hash)? {
+        for seq in self.entries.of_kind_naming(Correction::KIND, hash)? {
             if let Some(e) = self.at(seq)? {
                 if matches!(&e.body, LabBody::Correction(c) if c.supersedes == *hash) {
                     found.push(e);
@@ -385,7 +410,10 @@ impl Reader<'_> {
                 now = after;
             }
         }
-        let signature = signature_state(&self.ledger.entry(entry.seq)?, &self.registry);
+        let stored = self.entries.entry_at(entry.seq)?.ok_or_else(|| {
+            ExplainError::NotFound(format!("entry {} is no longer there", entry.seq))
+        })?;
+        let signature = signature_state(&stored, &self.registry);
         self.shown.insert(entry.seq);
         self.shown.extend(steps.iter().map(|c| c.seq));
         Ok(Provenance {
@@ -660,7 +688,7 @@ impl Reader<'_> {
         let mut found = Vec::new();
         let mut after = from;
         loop {
-            let page = self.ledger.store().of_kind_between(kind, after, to, PAGE)?;
+            let page = self.entries.of_kind_between(kind, after, to, PAGE)?;
             let full = page.len() == PAGE;
             for entry in page {
                 after = entry.seq;

@@ -126,7 +126,7 @@ pub fn history(ledger: &mut Ledger, subject: &Subject) -> Result<History, Explai
                 ))
             })?
         }
-        Subject::RunId(id) => run_by_id(ledger, id)?,
+        Subject::RunId(id) => run_by_id(ledger.store(), id)?,
     };
     if matches!(entry.body, LabBody::Correction(_)) {
         return Err(ExplainError::NotFound(format!(

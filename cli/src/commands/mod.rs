@@ -7,6 +7,7 @@ mod create;
 mod demo;
 mod dossier;
 mod entries;
+mod evidence;
 mod explain;
 mod history;
 mod key;
@@ -44,6 +45,7 @@ pub fn run(cli: &Cli) -> Result<Outcome, Failure> {
         Command::Exceptions(args) => review::exceptions(cli, args),
         Command::Explain(args) => explain::run(cli, args),
         Command::History(args) => history::run(cli, args),
+        Command::Evidence(command) => evidence::run(cli, command),
         Command::Dossier(args) => dossier::run(cli, args),
         Command::Sign(args) => review::sign(cli, args),
         Command::Periodic(args) => periodic::run(cli, args),
