@@ -1,7 +1,8 @@
-//! An evidence bundle through the real `assize` binary: exported from a ledger holding the
+//! Evidence through the real `assize` binary. A bundle exported from a ledger holding the
 //! invented sample week of `samples/lab/`, checked with the ledger file moved away (it needs
 //! only the bundle), its explanation equal to `explain` on the ledger, and refused, with a
-//! non-zero exit and nothing else, once a byte of it changes.
+//! non-zero exit and nothing else, once a byte of it changes; and two checkpoints written a
+//! note apart, the later proven to extend the earlier.
 
 mod common;
 
@@ -87,4 +88,52 @@ fn a_bundle_checks_and_explains_without_the_ledger_and_a_changed_byte_is_refused
     assert!(refused.stdout.is_empty());
     let stderr = String::from_utf8_lossy(&refused.stderr);
     assert!(stderr.starts_with("error: bundle refused: "), "{stderr}");
+}
+
+#[test]
+fn a_later_checkpoint_is_proven_to_extend_an_earlier_one() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let d = dir.path();
+    lab_with_the_sample_week(d, Path::new(env!("CARGO_MANIFEST_DIR")));
+    let l = ["--ledger", "lab.ledger", "--passphrase-file", "pass.txt"];
+    let write = |out: &str| {
+        assize(
+            d,
+            &[
+                &l[..],
+                &["checkpoint", "write", "--out", out, "--key", "qa.key"],
+            ]
+            .concat(),
+        )
+    };
+    write("first.checkpoint");
+    assize(
+        d,
+        &[
+            &l[..],
+            &["note", "--text", "end of the week", "--key", "analyst.key"],
+        ]
+        .concat(),
+    );
+    write("second.checkpoint");
+    let text = std::fs::read_to_string(d.join("second.checkpoint")).expect("checkpoint");
+    assert!(text.starts_with("assize checkpoint v2\n") && text.contains("\ntree "));
+    let proven = json(&assize(
+        d,
+        &[
+            "--json",
+            "--ledger",
+            "lab.ledger",
+            "checkpoint",
+            "extends",
+            "first.checkpoint",
+            "second.checkpoint",
+        ],
+    ));
+    assert_eq!(proven["extends"], true);
+    assert_eq!(
+        proven["later_seq"].as_u64().unwrap(),
+        proven["earlier_seq"].as_u64().unwrap() + 1
+    );
+    assert!(!proven["proof"].as_array().expect("proof").is_empty());
 }

@@ -543,6 +543,17 @@ pub enum CheckpointCommand {
     Write(CheckpointWriteArgs),
     /// Check that the ledger still extends a checkpoint file or code.
     Check(CheckpointCheckArgs),
+    /// Prove that a later checkpoint extends an earlier one (RFC 9162 consistency proof).
+    Extends(CheckpointExtendsArgs),
+}
+
+/// `assize checkpoint extends`
+#[derive(Debug, Args)]
+pub struct CheckpointExtendsArgs {
+    /// The earlier checkpoint file (version 2).
+    pub earlier: PathBuf,
+    /// The later checkpoint file (version 2).
+    pub later: PathBuf,
 }
 
 /// `assize checkpoint write`

@@ -193,6 +193,40 @@ impl Checkpoint {
     }
 }
 
+/// Checks, without the ledger, that the tree `later` signed extends the tree `earlier` signed
+/// (RFC 9162 §2.1.4.2 consistency proof between their tree roots): the entries `earlier` saw
+/// are the first entries of what `later` saw, unchanged. Both must be version 2 checkpoints of
+/// the same ledger with valid signatures (who signed them is for the caller to judge).
+pub fn extends(
+    earlier: &Checkpoint,
+    later: &Checkpoint,
+    proof: &[[u8; 32]],
+) -> Result<(), String> {
+    let (Some(old_root), Some(new_root)) = (earlier.tree_root, later.tree_root) else {
+        return Err("both checkpoints must be version 2 (with a tree root)".into());
+    };
+    if earlier.ledger_id != later.ledger_id {
+        return Err("the checkpoints are of two different ledgers".into());
+    }
+    if !earlier.signature_valid() || !later.signature_valid() {
+        return Err("a checkpoint's signature does not verify".into());
+    }
+    if earlier.seq > later.seq {
+        return Err(format!(
+            "the earlier checkpoint (entry {}) is beyond the later one (entry {})",
+            earlier.seq, later.seq
+        ));
+    }
+    if crate::merkle::verify_consistency(earlier.seq, later.seq, &old_root, &new_root, proof) {
+        Ok(())
+    } else {
+        Err(format!(
+            "the tree of {} entries signed later does not extend the tree of {} entries signed earlier: one of them was signed on a rewritten, rolled-back or forked copy",
+            later.seq, earlier.seq
+        ))
+    }
+}
+
 fn hex_array<const N: usize>(text: &str) -> Option<[u8; N]> {
     hex::decode(text).ok()?.try_into().ok()
 }

@@ -727,6 +727,49 @@ fn detects_a_forked_copy_against_a_later_checkpoint() {
 }
 
 #[test]
+fn consistency_proofs_join_honest_checkpoints_and_part_a_fork() {
+    // RFC 9162 §2.1.4: a consistency proof from the tree an earlier checkpoint signed to the
+    // tree a later one signed holds exactly when the later tree extends the earlier one.
+    use assize_ledger::checkpoint::extends;
+    let (fx, ledger) = fixture(10);
+    drop(ledger);
+    let fork = fx.sibling("fork.assize");
+    copy_ledger(&fx.path, &fork);
+    let mut genuine = reopen(&fx.path, 1);
+    let shared = genuine.checkpoint(&LAB_KEYS.founder()).expect("checkpoint");
+    append_notes(&mut genuine, LAB_KEYS, 3, "genuine");
+    let earlier = genuine.checkpoint(&LAB_KEYS.founder()).expect("checkpoint");
+    append_notes(&mut genuine, LAB_KEYS, 4, "genuine later");
+    let later = genuine.checkpoint(&LAB_KEYS.founder()).expect("checkpoint");
+    let proof = genuine
+        .consistency_proof(earlier.seq, later.seq)
+        .expect("proof");
+    assert_eq!(extends(&earlier, &later, &proof), Ok(()));
+    // The forked copy grows differently from the shared history on.
+    let mut forked = reopen(&fork, 1);
+    append_notes(&mut forked, LAB_KEYS, 7, "forked");
+    let on_fork = forked.checkpoint(&LAB_KEYS.founder()).expect("checkpoint");
+    assert_eq!(on_fork.seq, later.seq);
+    // The history both copies share is consistent with either ...
+    let from_shared = forked
+        .consistency_proof(shared.seq, on_fork.seq)
+        .expect("proof");
+    assert_eq!(extends(&shared, &on_fork, &from_shared), Ok(()));
+    // ... but no proof from the fork joins the genuine checkpoint to the fork's, and the
+    // genuine ledger's own proof does not fit the fork's root either.
+    let from_fork = forked
+        .consistency_proof(earlier.seq, on_fork.seq)
+        .expect("proof");
+    assert!(extends(&earlier, &on_fork, &from_fork).is_err());
+    assert!(extends(&earlier, &on_fork, &proof).is_err());
+    // A changed proof hash, or the checkpoints swapped, fail too.
+    let mut bent = proof.clone();
+    bent[0][0] ^= 1;
+    assert!(extends(&earlier, &later, &bent).is_err());
+    assert!(extends(&later, &earlier, &proof).is_err());
+}
+
+#[test]
 fn detects_a_rolled_back_copy_against_a_later_checkpoint() {
     // Attack: restore an older backup of the file over the current one, undoing everything
     // recorded since (the backup is a valid, shorter chain).

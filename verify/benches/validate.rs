@@ -20,7 +20,10 @@
 //!    a child process (this executable again, with `--memory-child PHASE PATH`), reading each
 //!    child's peak resident memory (`VmHWM`); flat means large / small ≤ 1.10;
 //! 4. times (d) `explain::explain` of one result on the large ledger, by entry and by run id,
-//!    against the target of 100 ms.
+//!    against the target of 100 ms;
+//! 5. exports (e) the evidence bundle of a middle result from a 10,000-entry ledger, the
+//!    tenth-size one and the large one, and prints each bundle's size, entries and longest
+//!    proof (they must grow with the logarithm of the ledger, not with it).
 //!
 //! For profiling, `--build-only ENTRIES PATH` builds one ledger and keeps it,
 //! `--memory-child PHASE PATH` then runs one phase on it, and `--explain-only PATH` times
@@ -223,10 +226,75 @@ fn main() -> BenchResult<()> {
         validation: peaks[1],
         in_memory: peaks[2],
     };
+    let ten_thousand_path = dir.path().join("ten-thousand.assize");
+    let ten_thousand_spec = LedgerSpec::realistic_with_entries(10_000);
+    let ten_thousand = build_ledger(&ten_thousand_spec, &ten_thousand_path)?;
+    let bundles = [
+        measure_bundle(&ten_thousand_path, ten_thousand.entries)?,
+        measure_bundle(&small_path, small.entries)?,
+        measure_bundle(&big_path, big.entries)?,
+    ];
     println!();
     print_table(&timings, &memory);
     print_explain(&explained);
+    print_bundles(&bundles);
     Ok(())
+}
+
+/// One evidence bundle of a middle result.
+struct BundleSize {
+    ledger_entries: u64,
+    bytes: usize,
+    entries: usize,
+    longest_proof: usize,
+}
+
+/// Exports and opens the evidence bundle of the result in the middle of the ledger.
+fn measure_bundle(path: &Path, ledger_entries: u64) -> BenchResult<BundleSize> {
+    use assize_verify::evidence::{export, open};
+    use assize_verify::explain::Target;
+    let mut ledger = open_read_only(path)?;
+    // The first entry from the middle on that belongs to a run.
+    let signer = lab_ledger::qa_signer();
+    let middle = ledger_entries / 2;
+    let made = (middle..middle + 200)
+        .find_map(|seq| export(&mut ledger, &Target::Entry(seq), &signer).ok())
+        .ok_or("no run entry near the middle of the ledger")?;
+    let opened = open(&made.bytes)?;
+    Ok(BundleSize {
+        ledger_entries,
+        bytes: made.bytes.len(),
+        entries: opened.bundle.entries.len(),
+        longest_proof: opened.bundle.longest_proof,
+    })
+}
+
+fn print_bundles(bundles: &[BundleSize]) {
+    let mut bundles: Vec<&BundleSize> = bundles.iter().collect();
+    bundles.sort_by_key(|b| b.ledger_entries);
+    for b in &bundles {
+        print_row(&[
+            &format!(
+                "(e) evidence bundle of a middle result, {} entries",
+                b.ledger_entries
+            ),
+            &format!("{:.1} KiB", b.bytes as f64 / 1024.0),
+            "-",
+            &format!("{} entries", b.entries),
+            "-",
+            &format!("proofs <= {} hashes", b.longest_proof),
+            "-",
+        ]);
+    }
+    if let (Some(first), Some(last)) = (bundles.first(), bundles.last()) {
+        println!(
+            "bundles: {}x the ledger entries, {:.2}x the bundle bytes (log2 of the sizes: {:.1} and {:.1})",
+            last.ledger_entries / first.ledger_entries.max(1),
+            last.bytes as f64 / first.bytes.max(1) as f64,
+            (first.ledger_entries as f64).log2(),
+            (last.ledger_entries as f64).log2()
+        );
+    }
 }
 
 /// How long `explain` takes on the large ledger, opening it each time, best of a few.

@@ -215,6 +215,13 @@ fn time_text(at: Timestamp) -> String {
     at.to_string()
 }
 
+/// The fixture's QA person, who may sign checkpoints and evidence bundles.
+#[allow(dead_code)] // used by the validate bench only
+pub fn qa_signer() -> Signer {
+    let qa = &PERSONS[0];
+    Signer::from_secret(qa.id, &[qa.secret_byte; 32])
+}
+
 fn fixture_signers() -> Vec<Signer> {
     PERSONS
         .iter()
