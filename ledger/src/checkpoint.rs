@@ -197,11 +197,7 @@ impl Checkpoint {
 /// (RFC 9162 §2.1.4.2 consistency proof between their tree roots): the entries `earlier` saw
 /// are the first entries of what `later` saw, unchanged. Both must be version 2 checkpoints of
 /// the same ledger with valid signatures (who signed them is for the caller to judge).
-pub fn extends(
-    earlier: &Checkpoint,
-    later: &Checkpoint,
-    proof: &[[u8; 32]],
-) -> Result<(), String> {
+pub fn extends(earlier: &Checkpoint, later: &Checkpoint, proof: &[[u8; 32]]) -> Result<(), String> {
     let (Some(old_root), Some(new_root)) = (earlier.tree_root, later.tree_root) else {
         return Err("both checkpoints must be version 2 (with a tree root)".into());
     };
