@@ -84,7 +84,7 @@ pub enum Command {
     Sign(SignArgs),
     /// Summarize a period for the quality unit: rates, roles and keys, results to re-review.
     Periodic(PeriodicArgs),
-    /// Build the demo ledger from samples/ and verify it.
+    /// Build the demo lab's ledger from samples/demo/, validate it and write a review dossier.
     Demo(DemoArgs),
 }
 
@@ -582,7 +582,7 @@ pub struct CheckpointCheckArgs {
 /// `assize demo`
 #[derive(Debug, Args)]
 pub struct DemoArgs {
-    /// Directory for the demo ledger, keys and checkpoint (replaced if it holds an earlier demo).
+    /// Directory for the demo ledger, keys, checkpoint and dossier (cleared of an earlier demo).
     #[arg(long, default_value = "assize-demo", value_name = "DIR")]
     pub dir: PathBuf,
 }

@@ -20,6 +20,12 @@ impl Failure {
         }
     }
 
+    /// The same failure, its message prefixed with where it happened.
+    pub fn within(mut self, place: &str) -> Self {
+        self.message = format!("{place}: {}", self.message);
+        self
+    }
+
     /// Whether the failure is only stdout being closed (e.g. piped into `head`).
     pub fn is_closed_pipe(&self) -> bool {
         self.closed_pipe

@@ -1,4 +1,4 @@
-//! `assize dossier` end to end on the demo ledger, with two more invented standardizations of
+//! `assize dossier` end to end on the demo ledger, with one more invented standardization of
 //! the demo titrant imported through the binary: the page shows exactly the numbers `--json`
 //! prints (each found in the HTML by its cell id and read back), names no outside address,
 //! escapes ledger text, never replaces a file without `--force`, and renders in a real
@@ -12,224 +12,120 @@ use std::sync::OnceLock;
 use std::time::{Duration, Instant};
 
 const BIN: &str = env!("CARGO_BIN_EXE_assize");
-const ASSAY: &str = "AS-HP-26-0871-1";
+/// The demo's copying-slip assay (it has findings, and its titrant a standardization history).
+const ASSAY: &str = "AS-HP-26-1058-1";
+/// The standardization imported after the demo.
+const EXTRA: &str = "STD-KMN-2611-1-E";
 
-/// Two more standardizations of the demo titrant, on later days, each after that day's
-/// balance check. All readings are invented; an end-point note carries markup characters.
-const EXTRA_STANDARDIZATIONS: &str = r#"
+/// One more standardization of the demo titrant, on the Monday after the demo's three weeks,
+/// after that day's balance check. All readings are invented; an end-point note carries
+/// markup characters.
+const EXTRA_STANDARDIZATION: &str = r#"
 [[record]]
 kind = "balance-check"
 balance = "B2-AX"
-test_weight = "W-F1-200G-07"
+test_weight = "W200-F1-0311"
 reference_mass = "200.0002 g"
 reading = "200.0002 g"
-at = "2026-11-24T07:50:00Z"
+at = "2026-11-30T07:50:00Z"
 
 [[record]]
 kind = "run"
-id = "STD-KMN-2611-3-B"
+id = "STD-KMN-2611-1-E"
 run_kind = "standardization"
 method = "QAL-M-014"
 policy = "QAL-POL-001"
-titrant = "KMN-2611-3"
-reference_lot = "NOX-2611-A"
-started_at = "2026-11-24T08:05:00Z"
+titrant = "KMN-2611-1"
+reference_lot = "NOX-26-007"
+started_at = "2026-11-30T08:05:00Z"
 
 [[record]]
 kind = "weighing"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 replicate = 1
 portion = "primary-standard"
 balance = "B2-AX"
 mode = "by-difference"
 first = "16.8420 g"
-first_at = "2026-11-24T08:09:10Z"
+first_at = "2026-11-30T08:09:10Z"
 second = "16.5922 g"
-second_at = "2026-11-24T08:09:55Z"
+second_at = "2026-11-30T08:09:55Z"
 
 [[record]]
 kind = "weighing"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 replicate = 1
 portion = "titrant"
 balance = "B2-AX"
 mode = "by-difference"
 first = "113.0104 g"
-first_at = "2026-11-24T08:25:00Z"
+first_at = "2026-11-30T08:25:00Z"
 second = "75.7395 g"
-second_at = "2026-11-24T08:37:40Z"
+second_at = "2026-11-30T08:37:40Z"
 
 [[record]]
 kind = "replicate"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 number = 1
 endpoint = "faint pink <persisting> 30 s & stable"
 
 [[record]]
 kind = "weighing"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 replicate = 2
 portion = "primary-standard"
 balance = "B2-AX"
 mode = "by-difference"
 first = "16.5922 g"
-first_at = "2026-11-24T08:41:00Z"
+first_at = "2026-11-30T08:41:00Z"
 second = "16.3401 g"
-second_at = "2026-11-24T08:41:47Z"
+second_at = "2026-11-30T08:41:47Z"
 
 [[record]]
 kind = "weighing"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 replicate = 2
 portion = "titrant"
 balance = "B2-AX"
 mode = "by-difference"
 first = "113.2046 g"
-first_at = "2026-11-24T08:56:10Z"
+first_at = "2026-11-30T08:56:10Z"
 second = "75.5787 g"
-second_at = "2026-11-24T09:08:31Z"
+second_at = "2026-11-30T09:08:31Z"
 
 [[record]]
 kind = "replicate"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 number = 2
 endpoint = "faint pink persisting 30 s"
 
 [[record]]
 kind = "weighing"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 replicate = 3
 portion = "primary-standard"
 balance = "B2-AX"
 mode = "by-difference"
 first = "16.3401 g"
-first_at = "2026-11-24T09:12:02Z"
+first_at = "2026-11-30T09:12:02Z"
 second = "16.0892 g"
-second_at = "2026-11-24T09:12:44Z"
+second_at = "2026-11-30T09:12:44Z"
 
 [[record]]
 kind = "weighing"
-run = "STD-KMN-2611-3-B"
+run = "STD-KMN-2611-1-E"
 replicate = 3
 portion = "titrant"
 balance = "B2-AX"
 mode = "by-difference"
 first = "114.1133 g"
-first_at = "2026-11-24T09:27:15Z"
+first_at = "2026-11-30T09:27:15Z"
 second = "76.6587 g"
-second_at = "2026-11-24T09:39:50Z"
+second_at = "2026-11-30T09:39:50Z"
 
 [[record]]
 kind = "replicate"
-run = "STD-KMN-2611-3-B"
-number = 3
-endpoint = "faint pink persisting 30 s"
-
-[[record]]
-kind = "balance-check"
-balance = "B2-AX"
-test_weight = "W-F1-200G-07"
-reference_mass = "200.0002 g"
-reading = "200.0001 g"
-at = "2026-11-25T07:51:00Z"
-
-[[record]]
-kind = "run"
-id = "STD-KMN-2611-3-C"
-run_kind = "standardization"
-method = "QAL-M-014"
-policy = "QAL-POL-001"
-titrant = "KMN-2611-3"
-reference_lot = "NOX-2611-A"
-started_at = "2026-11-25T08:00:00Z"
-
-[[record]]
-kind = "weighing"
-run = "STD-KMN-2611-3-C"
-replicate = 1
-portion = "primary-standard"
-balance = "B2-AX"
-mode = "by-difference"
-first = "15.7310 g"
-first_at = "2026-11-25T08:04:00Z"
-second = "15.4795 g"
-second_at = "2026-11-25T08:04:41Z"
-
-[[record]]
-kind = "weighing"
-run = "STD-KMN-2611-3-C"
-replicate = 1
-portion = "titrant"
-balance = "B2-AX"
-mode = "by-difference"
-first = "112.8870 g"
-first_at = "2026-11-25T08:20:05Z"
-second = "75.3542 g"
-second_at = "2026-11-25T08:32:30Z"
-
-[[record]]
-kind = "replicate"
-run = "STD-KMN-2611-3-C"
-number = 1
-endpoint = "faint pink persisting 30 s"
-
-[[record]]
-kind = "weighing"
-run = "STD-KMN-2611-3-C"
-replicate = 2
-portion = "primary-standard"
-balance = "B2-AX"
-mode = "by-difference"
-first = "15.4795 g"
-first_at = "2026-11-25T08:36:00Z"
-second = "15.2312 g"
-second_at = "2026-11-25T08:36:38Z"
-
-[[record]]
-kind = "weighing"
-run = "STD-KMN-2611-3-C"
-replicate = 2
-portion = "titrant"
-balance = "B2-AX"
-mode = "by-difference"
-first = "113.3391 g"
-first_at = "2026-11-25T08:51:20Z"
-second = "76.2857 g"
-second_at = "2026-11-25T09:03:44Z"
-
-[[record]]
-kind = "replicate"
-run = "STD-KMN-2611-3-C"
-number = 2
-endpoint = "faint pink persisting 30 s"
-
-[[record]]
-kind = "weighing"
-run = "STD-KMN-2611-3-C"
-replicate = 3
-portion = "primary-standard"
-balance = "B2-AX"
-mode = "by-difference"
-first = "15.2312 g"
-first_at = "2026-11-25T09:07:10Z"
-second = "14.9826 g"
-second_at = "2026-11-25T09:07:52Z"
-
-[[record]]
-kind = "weighing"
-run = "STD-KMN-2611-3-C"
-replicate = 3
-portion = "titrant"
-balance = "B2-AX"
-mode = "by-difference"
-first = "114.0020 g"
-first_at = "2026-11-25T09:22:30Z"
-second = "76.9101 g"
-second_at = "2026-11-25T09:34:58Z"
-
-[[record]]
-kind = "replicate"
-run = "STD-KMN-2611-3-C"
+run = "STD-KMN-2611-1-E"
 number = 3
 endpoint = "faint pink persisting 30 s"
 "#;
@@ -255,13 +151,13 @@ fn must(dir: &Path, args: &[&str]) -> Output {
     out
 }
 
-/// The demo ledger with the two extra standardizations, built once.
+/// The demo ledger with the extra standardization, built once.
 fn demo() -> &'static Path {
     static DEMO: OnceLock<tempfile::TempDir> = OnceLock::new();
     DEMO.get_or_init(|| {
         let dir = tempfile::tempdir().expect("demo dir");
         must(dir.path(), &["demo", "--dir", "demo"]);
-        std::fs::write(dir.path().join("extra.toml"), EXTRA_STANDARDIZATIONS).expect("batch");
+        std::fs::write(dir.path().join("extra.toml"), EXTRA_STANDARDIZATION).expect("batch");
         must(
             dir.path(),
             &[
@@ -384,7 +280,13 @@ fn the_pages_numbers_are_the_json_numbers() {
         .collect();
     assert_eq!(
         runs,
-        ["STD-KMN-2611-3-A", "STD-KMN-2611-3-B", "STD-KMN-2611-3-C"]
+        [
+            "STD-KMN-2611-1-A",
+            "STD-KMN-2611-1-B",
+            "STD-KMN-2611-1-C",
+            "STD-KMN-2611-1-D",
+            EXTRA
+        ]
     );
     for p in points {
         same_number(&html, &format!("cc-point-{}", p["seq"]), &p["value"]);
@@ -429,7 +331,7 @@ fn the_page_is_self_contained_and_escapes_ledger_text() {
         assert!(html.contains(&format!("<strong>{code}</strong>")), "{code}");
     }
     // The end-point note typed with markup characters is shown as text, never as markup.
-    let (_dir, _page, html, _) = written_for("STD-KMN-2611-3-B");
+    let (_dir, _page, html, _) = written_for(EXTRA);
     assert!(html.contains("faint pink &lt;persisting&gt; 30 s &amp; stable"));
     assert!(!html.contains("<persisting>"));
 }
@@ -443,7 +345,7 @@ fn never_replaces_a_file_without_force_and_leaves_nothing_partial() {
             "--ledger",
             ledger.to_str().expect("utf-8"),
             "dossier",
-            "STD-KMN-2611-3-B",
+            EXTRA,
             "--out",
             page.to_str().expect("utf-8"),
         ]
@@ -467,7 +369,7 @@ fn never_replaces_a_file_without_force_and_leaves_nothing_partial() {
             .collect::<Vec<_>>(),
     );
     let replaced = std::fs::read_to_string(&page).expect("page");
-    assert!(replaced.contains("Review dossier: standardization STD-KMN-2611-3-B"));
+    assert!(replaced.contains(&format!("Review dossier: standardization {EXTRA}")));
     let names: Vec<String> = std::fs::read_dir(dir.path())
         .expect("dir")
         .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())

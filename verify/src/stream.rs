@@ -543,20 +543,12 @@ impl Stream {
         };
         if filed {
             if let LabBody::Correction(c) = &entry.body {
-                if c.reason.trim().is_empty() {
+                let corrected_seq = self.seq_of(&target).unwrap_or(0);
+                if let Some(finding) =
+                    rules::changes::without_reason(&entry.author, corrected_seq, c)
+                {
                     self.cross_run.push(
-                        Finding::new(
-                            Code::CorrectionWithoutReason,
-                            format!(
-                                "{} changed entry {} ({}) without giving a reason",
-                                entry.author,
-                                self.seq_of(&target).unwrap_or(0),
-                                c.kind
-                            ),
-                            "every change is explained (21 CFR 58.130(e))",
-                        )
-                        .involving([entry_ref(entry)])
-                        .involving(
+                        finding.involving([entry_ref(entry)]).involving(
                             self.seq_of(&target)
                                 .map(|seq| EntryRef { seq, hash: target }),
                         ),

@@ -1440,6 +1440,41 @@ fn chg_02_correction_without_a_reason() {
     assert!(involves(&findings[0], built.seq("correction")));
 }
 
+/// The clean scenario with replicate 1's end-point note corrected after the stated values,
+/// giving `reason`.
+fn endpoint_corrected_with(reason: &str) -> Plan {
+    let mut plan = Plan::clean();
+    let time = plus(plan.step("assay-stated").at, 60);
+    plan.insert_after(
+        "assay-stated",
+        drafted(
+            "correction",
+            time,
+            Who::Analyst2,
+            correct_endpoint(ASSAY, 1, reason),
+        ),
+    );
+    plan
+}
+
+#[test]
+fn chg_02_placeholder_reason_counts_as_none() {
+    // `assize correct` refuses a blank reason, so a placeholder is what gets typed instead.
+    let plan = endpoint_corrected_with("n/a");
+    let (built, findings) = expect_codes(&plan, &["CHG-02"]);
+    assert!(involves(&findings[0], built.seq("correction")));
+    assert!(
+        findings[0].message.contains("\"n/a\" as its reason"),
+        "{}",
+        findings[0].message
+    );
+}
+
+#[test]
+fn chg_02_silent_for_a_short_reason_that_says_something() {
+    expect_codes(&endpoint_corrected_with("n/a in the wrong box"), &[]);
+}
+
 // ---------------------------------------------------------------------------------------------
 // PAT: suspicious patterns
 

@@ -2,6 +2,11 @@
 //! a result's conformance around (pass → fail or fail → pass), which the reviewer must read
 //! critically even when a reason is given.
 //!
+//! A reason is missing when it is blank or one of the few placeholders people type to get past
+//! a prompt that will not take a blank ([`NOT_A_REASON`]: `-`, `n/a`, `none`, ...): those
+//! explain nothing, so they count as no reason. Anything else counts as a reason; whether it
+//! is a good one is for the reviewer, who sees it in the exception report.
+//!
 //! The result "as first recorded" is recomputed from the original bodies of everything the run
 //! depends on ([`dependencies`]), gathered into a small catalog without the corrections.
 
@@ -18,6 +23,62 @@ use foldhash::{HashSet, HashSetExt};
 use rust_decimal::Decimal;
 use std::str::FromStr;
 
+/// Placeholders that stand where a reason should be, compared with [`gives_a_reason`]'s
+/// plain form of a reason (trimmed, lower case, single spaces, no final full stop).
+pub const NOT_A_REASON: [&str; 11] = [
+    "",
+    "-",
+    "--",
+    "?",
+    "n/a",
+    "na",
+    "none",
+    "nil",
+    "no reason",
+    "tbd",
+    "x",
+];
+
+/// Whether a correction's reason says anything: not blank and not a placeholder of
+/// [`NOT_A_REASON`].
+pub fn gives_a_reason(reason: &str) -> bool {
+    let plain: String = reason
+        .trim()
+        .trim_end_matches('.')
+        .to_lowercase()
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ");
+    !NOT_A_REASON.contains(&plain.as_str())
+}
+
+/// The `CHG-02` finding of a correction (by `author`, of the entry at `corrected_seq`) whose
+/// reason says nothing; `None` when it gives one. The caller adds the entries involved.
+pub fn without_reason(
+    author: &str,
+    corrected_seq: u64,
+    correction: &Correction,
+) -> Option<Finding> {
+    if gives_a_reason(&correction.reason) {
+        return None;
+    }
+    let changed = format!(
+        "{author} changed entry {corrected_seq} ({})",
+        correction.kind
+    );
+    let reason = correction.reason.trim();
+    let message = if reason.is_empty() {
+        format!("{changed} without giving a reason")
+    } else {
+        format!("{changed} with {reason:?} as its reason, which explains nothing")
+    };
+    Some(Finding::new(
+        Code::CorrectionWithoutReason,
+        message,
+        "every change is explained (21 CFR 58.130(e))",
+    ))
+}
+
 /// Pushes the change findings.
 pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     let catalog = evidence.catalog;
@@ -25,19 +86,11 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
         let LabBody::Correction(c) = &entry.body else {
             continue;
         };
-        if c.reason.trim().is_empty() {
-            let finding = Finding::new(
-                Code::CorrectionWithoutReason,
-                format!(
-                    "{} changed entry {} ({}) without giving a reason",
-                    entry.author,
-                    evidence.entry_ref(&c.supersedes).map_or(0, |r| r.seq),
-                    c.kind
-                ),
-                "every change is explained (21 CFR 58.130(e))",
-            )
-            .involving([entry_ref(entry)])
-            .involving(evidence.entry_ref(&c.supersedes));
+        let corrected_seq = evidence.entry_ref(&c.supersedes).map_or(0, |r| r.seq);
+        if let Some(finding) = without_reason(&entry.author, corrected_seq, c) {
+            let finding = finding
+                .involving([entry_ref(entry)])
+                .involving(evidence.entry_ref(&c.supersedes));
             out.push(match evidence.run_of_entry(entry) {
                 Some(run) => run.finding(finding),
                 None => finding,
@@ -162,4 +215,38 @@ fn flips(evidence: &Evidence<'_>, run: &RunView<'_>, out: &mut Vec<Finding>) {
         ))
         .involving(corrections.into_iter().map(entry_ref)),
     );
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn blanks_and_placeholders_give_no_reason() {
+        for reason in [
+            "",
+            "   ",
+            "-",
+            "N/A",
+            "n/a.",
+            " None ",
+            "no  reason",
+            "TBD",
+            ".",
+        ] {
+            assert!(!gives_a_reason(reason), "{reason:?}");
+        }
+    }
+
+    #[test]
+    fn any_words_beyond_a_placeholder_give_a_reason() {
+        for reason in [
+            "typo",
+            "n/a was written in the wrong field",
+            "transposed digits, checked against the balance display",
+            "none of the portion was lost; reading misread",
+        ] {
+            assert!(gives_a_reason(reason), "{reason:?}");
+        }
+    }
 }
