@@ -20,6 +20,7 @@
 //! `ASSIZE_BENCH_DIR` (default: cargo's target tmp dir, on the same disk as the build), prints
 //! the table on stdout and its progress on stderr, and asserts no timing.
 
+use assize_ledger::merkle::{leaf_hash, MemoryTree};
 use assize_ledger::records::{Enrolment, Note};
 use assize_ledger::signing::signed_message;
 use assize_ledger::{
@@ -422,12 +423,15 @@ fn time_one_signature(signer: &Signer) -> Duration {
     elapsed / SIGNING_SAMPLES as u32
 }
 
-/// The raw ceiling: the very rows the ledger stored, inserted by plain rusqlite into a table
-/// with the ledger's columns and indexes (no guard triggers), one row per durable
-/// `BEGIN IMMEDIATE` transaction with the ledger's pragmas. What separates the two is exactly
-/// the ledger's own work: reading the head, judging authority, hashing, signing, the guard.
+/// The raw ceiling: the very rows the ledger stored, inserted by plain rusqlite into tables
+/// with the ledger's columns and indexes (no guard triggers), one entry per durable
+/// `BEGIN IMMEDIATE` transaction with the ledger's pragmas: its row, and the Merkle tree nodes
+/// its leaf completes (computed in memory, the same rows the ledger writes). What separates the
+/// two is exactly the ledger's own work: reading the head, judging authority, hashing, signing,
+/// reading the left siblings of the new tree nodes, the guards.
 struct RawTable {
     conn: Connection,
+    tree: MemoryTree,
 }
 
 /// The ledger's table and index layout (kept in step with `SCHEMA` in ledger/src/store.rs).
@@ -440,6 +444,10 @@ CREATE TABLE entries (
 CREATE INDEX entries_by_hash   ON entries(hash);
 CREATE INDEX entries_by_kind   ON entries(kind, seq);
 CREATE INDEX entries_by_author ON entries(author, seq);
+CREATE TABLE merkle_nodes (
+    level INTEGER NOT NULL, idx INTEGER NOT NULL, hash BLOB NOT NULL,
+    PRIMARY KEY (level, idx)
+) WITHOUT ROWID;
 ";
 
 impl RawTable {
@@ -451,7 +459,10 @@ impl RawTable {
         }
         conn.pragma_update(None, "synchronous", "FULL")?;
         conn.execute_batch(RAW_SCHEMA)?;
-        Ok(RawTable { conn })
+        Ok(RawTable {
+            conn,
+            tree: MemoryTree::new(),
+        })
     }
 
     /// Inserts each entry's stored values, each in its own `BEGIN IMMEDIATE` transaction;
@@ -479,6 +490,16 @@ impl RawTable {
                 entry.signer.map(|k| k.0.to_vec()),
                 entry.signature.map(|s| s.to_vec()),
             ])?;
+            for node in self.tree.push_leaf_hash(leaf_hash(&entry.hash.0)) {
+                tx.prepare_cached(
+                    "INSERT INTO merkle_nodes (level, idx, hash) VALUES (?1, ?2, ?3)",
+                )?
+                .execute(params![
+                    i64::from(node.level),
+                    node.index as i64,
+                    node.hash.as_slice()
+                ])?;
+            }
             tx.commit()?;
         }
         Ok(started.elapsed())
@@ -783,7 +804,7 @@ fn print_table(
     ]);
     println!();
     println!(
-        "ceilings: the same rows inserted by plain rusqlite into the ledger's table and indexes, \
+        "ceilings: the same rows (each entry and the tree nodes its leaf completes) inserted by plain rusqlite into the ledger's tables and indexes, \
          one per BEGIN IMMEDIATE transaction (WAL, synchronous=FULL), interleaved in chunks of {}; ed25519_dalek::verify_batch in \
          batches of {CEILING_BATCH} on {} threads. Replay and ceiling: best of {REPLAY_ROUNDS}. \
          Memory ratio: {} entries over {} entries.",
