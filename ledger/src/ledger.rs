@@ -15,7 +15,7 @@ use crate::merkle::{self, TreeHead};
 use crate::records::{Enrolment, OpenLedger, Record};
 use crate::registry::{Registry, RegistryChange};
 use crate::replay::{replay, replay_observed, IntegrityReport, ReplayOptions};
-use crate::store::{AppendTx, EntryFilter, Head, Store};
+use crate::store::{AppendTx, EntryFilter, Head, Store, TreeFrontier};
 use crate::{Entry, EntryHash, KindRules, LedgerError, Role, Signer};
 use std::path::Path;
 use std::sync::Arc;
@@ -31,6 +31,9 @@ pub struct Ledger {
     /// The head as this handle last checked it under the write lock (its stored hash matched
     /// its contents and the registry was brought up to it); `None` before the first append.
     synced_head: Option<Head>,
+    /// The tree's frontier as this handle's last append left it (kept only while the head is
+    /// `synced_head`), so appends do not read tree nodes back.
+    tree_frontier: TreeFrontier,
 }
 
 impl Ledger {
@@ -66,6 +69,7 @@ impl Ledger {
             clock,
             registry: Registry::new(),
             synced_head: None,
+            tree_frontier: TreeFrontier::default(),
         };
         match ledger.append_record(&opening, founder) {
             Ok(entry) => Ok((ledger, entry)),
@@ -94,6 +98,7 @@ impl Ledger {
             clock,
             registry: Registry::new(),
             synced_head: None,
+            tree_frontier: TreeFrontier::default(),
         })
     }
 
@@ -168,7 +173,10 @@ impl Ledger {
     {
         let tx = self.store.begin_append()?;
         let mut head = tx.head()?;
+        // Changed inside the batch on a copy, kept only once the batch commits.
+        let mut frontier = self.tree_frontier.clone();
         if head != self.synced_head {
+            frontier = TreeFrontier::default();
             // Another writer appended (or this is our first append): check the head it left
             // and bring the registry up to date, all under the write lock.
             if let Some(head_entry) = tx.head_entry()? {
@@ -189,7 +197,7 @@ impl Ledger {
                 registry,
             };
             let (entry, change) = judge.seal(&tx, head, draft, signer)?;
-            tx.insert(&entry)?;
+            tx.insert_with_frontier(&entry, &mut frontier)?;
             tx.insert_labels(
                 entry.seq,
                 &entry.kind,
@@ -212,6 +220,7 @@ impl Ledger {
             self.registry = registry;
         }
         self.synced_head = head;
+        self.tree_frontier = frontier;
         Ok(appended)
     }
 

@@ -689,6 +689,14 @@ impl AppendTx<'_> {
     /// Inserts the entry, its reference index rows, and its leaf with every tree node the leaf
     /// completes.
     pub fn insert(&self, entry: &Entry) -> Result<()> {
+        self.insert_with_frontier(entry, &mut TreeFrontier::default())
+    }
+
+    /// Like [`AppendTx::insert`], taking the left siblings of the new tree nodes from
+    /// `frontier` when it holds them (else from the stored tree) and leaving in it the
+    /// frontier of the tree with this entry. The caller keeps `frontier` only while nobody
+    /// else appends (it must describe the stored tree, or be empty).
+    pub fn insert_with_frontier(&self, entry: &Entry, frontier: &mut TreeFrontier) -> Result<()> {
         let refs: Vec<u8> = entry.references.iter().flat_map(|r| r.0).collect();
         self.tx
             .prepare_cached(&format!(
@@ -718,7 +726,24 @@ impl AppendTx<'_> {
                 .and_then(|mut s| s.execute(params![target.0.as_slice(), entry.seq as i64]))
                 .map_err(storage("indexing references"))?;
         }
-        insert_leaf(&self.tx, self, entry.seq, &entry.hash)
+        let leaf_index = entry
+            .seq
+            .checked_sub(1)
+            .ok_or_else(|| LedgerError::BadInput {
+                what: "sequence number".into(),
+                reason: "entries are numbered from 1".into(),
+            })?;
+        let source = FrontierFirst {
+            frontier,
+            stored: self,
+        };
+        let nodes =
+            merkle::nodes_completed_by(&source, leaf_index, merkle::leaf_hash(&entry.hash.0))?;
+        for node in &nodes {
+            insert_node(&self.tx, node)?;
+        }
+        frontier.advance(entry.seq, &nodes);
+        Ok(())
     }
 
     /// Adds the label index rows of entry `seq` (inserted in this transaction).
@@ -741,6 +766,55 @@ fn insert_labels(conn: &Connection, seq: u64, kind: &str, labels: &[String]) -> 
         .map_err(storage("indexing labels"))?;
     }
     Ok(())
+}
+
+/// The perfect subtree roots of the tree's right edge ("frontier"): for a tree of `size`
+/// leaves, one root per set bit of `size`. The next leaf's new nodes need exactly these as
+/// their left siblings, so an appender that keeps them never reads the tree back.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct TreeFrontier {
+    /// Leaves of the tree described; 0 with no roots when unknown (read from the store then).
+    size: u64,
+    /// `(level, index, hash)` of each frontier root.
+    roots: Vec<PerfectNode>,
+}
+
+impl TreeFrontier {
+    /// The roots after appending leaf `size` (its seq), given the nodes it completed.
+    fn advance(&mut self, size: u64, completed: &[PerfectNode]) {
+        let known = self.size + 1 == size;
+        self.size = size;
+        self.roots.extend_from_slice(completed);
+        if !known {
+            // Started from the store: keep only what this leaf made; the rest is read back.
+            self.roots = completed.to_vec();
+        }
+        self.roots.retain(|node| {
+            size & (1u64 << node.level) != 0 && (size >> node.level) == node.index + 1
+        });
+    }
+
+    fn get(&self, level: u32, index: u64) -> Option<[u8; 32]> {
+        self.roots
+            .iter()
+            .find(|n| n.level == level && n.index == index)
+            .map(|n| n.hash)
+    }
+}
+
+/// Left siblings from the kept frontier, else from the stored tree.
+struct FrontierFirst<'a, 'b> {
+    frontier: &'a TreeFrontier,
+    stored: &'a AppendTx<'b>,
+}
+
+impl SubtreeSource for FrontierFirst<'_, '_> {
+    fn perfect_root(&self, level: u32, index: u64) -> Result<[u8; 32]> {
+        match self.frontier.get(level, index) {
+            Some(hash) => Ok(hash),
+            None => read_node(&self.stored.tx, level, index),
+        }
+    }
 }
 
 fn read_head(conn: &Connection) -> Result<Option<Head>> {
@@ -921,5 +995,36 @@ fn not_a_ledger(path: &Path, error: rusqlite::Error) -> LedgerError {
             action: "opening the ledger",
             source: error,
         },
+    }
+}
+
+#[cfg(test)]
+mod frontier_tests {
+    use super::TreeFrontier;
+    use crate::merkle::{leaf_hash, MemoryTree};
+
+    /// After every leaf, the kept frontier is exactly the perfect roots at the set bits of the
+    /// tree's size (RFC 9162's tree of `n` leaves decomposes into those subtrees), with the
+    /// hashes of a tree kept in full.
+    #[test]
+    fn the_frontier_is_the_roots_at_the_set_bits_of_the_size() {
+        let mut full = MemoryTree::new();
+        let mut frontier = TreeFrontier::default();
+        for n in 1..=300u64 {
+            let completed = full.push_leaf_hash(leaf_hash(&n.to_be_bytes()));
+            frontier.advance(n, &completed);
+            let mut expected: Vec<(u32, u64)> = (0..64)
+                .filter(|level| n & (1u64 << level) != 0)
+                .map(|level| (level, (n >> level) - 1))
+                .collect();
+            expected.sort_unstable();
+            let mut kept: Vec<(u32, u64)> =
+                frontier.roots.iter().map(|r| (r.level, r.index)).collect();
+            kept.sort_unstable();
+            assert_eq!(kept, expected, "n = {n}");
+            for root in &frontier.roots {
+                assert_eq!(full.node(root.level, root.index), Some(root.hash));
+            }
+        }
     }
 }
