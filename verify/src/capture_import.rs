@@ -778,61 +778,14 @@ fn list(seqs: &[u64]) -> String {
 mod tests {
     use super::*;
     use crate::printout::parse_printout;
-    use crate::records::{Adoption, DocumentKind, RunKind, WeighingMode};
+    use crate::records::{Adoption, DocumentKind, WeighingMode};
+    use crate::test_records::{at, balance, entry, h, reading, run_record};
 
     // Every balance, run, reading and time below is invented for the tests. Times are seconds
     // after 2026-11-16T08:00:00Z; the printouts write the same instants as text.
 
-    fn h(tag: &str) -> EntryHash {
-        EntryHash::digest(tag.as_bytes())
-    }
-
-    fn at(seconds: i64) -> Timestamp {
-        // 20_773 days from 1970-01-01 to 2026-11-16 (Gregorian leap-year rule, RFC 3339
-        // Appendix C) × 86_400 s, plus 8 h.
-        Timestamp((20_773 * 86_400 + 8 * 3600 + seconds) * 1_000_000)
-    }
-
-    fn reading(text: &str) -> Reading {
-        Reading::parse_with_unit(text).unwrap()
-    }
-
-    fn entry(seq: u64, tag: &str, kind: &str, body: LabBody) -> CatalogEntry {
-        CatalogEntry {
-            seq,
-            hash: h(tag),
-            kind: kind.to_string(),
-            author: "analyst.a".into(),
-            record_time: at(3_600 + seq as i64),
-            signed: true,
-            body,
-        }
-    }
-
-    fn balance(seq: u64, id: &str) -> CatalogEntry {
-        let body = Balance {
-            id: id.into(),
-            description: "analytical balance (invented)".into(),
-            readability: reading("0.0001 g"),
-            capacity: reading("220 g"),
-            minimum_weight: reading("0.0820 g"),
-        };
-        entry(seq, id, Balance::KIND, LabBody::Balance(body))
-    }
-
     fn run(seq: u64, id: &str, policy: &str) -> CatalogEntry {
-        let body = Run {
-            id: id.into(),
-            kind: RunKind::Standardization,
-            method: h("method"),
-            policy: h(policy),
-            titrant: h("titrant"),
-            reference_lot: Some(h("lot")),
-            sample: None,
-            standardization: None,
-            started_at: at(0),
-        };
-        entry(seq, id, Run::KIND, LabBody::Run(body))
+        entry(seq, id, Run::KIND, LabBody::Run(run_record(id, policy)))
     }
 
     /// A weighing of run RUN-1 by difference: (replicate, portion, balance, first reading and

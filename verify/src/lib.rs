@@ -39,6 +39,8 @@ pub mod signoff;
 pub mod slips;
 pub mod stats;
 pub mod stream;
+#[cfg(test)]
+mod test_records;
 pub mod uncertainty;
 pub mod validate;
 

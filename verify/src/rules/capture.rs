@@ -271,47 +271,12 @@ fn portion_target(run: &RunView<'_>, entry: &CatalogEntry, w: &Weighing, out: &m
 mod tests {
     use super::*;
     use crate::catalog::Catalog;
-    use crate::quantity::Reading;
-    use crate::records::{Balance, Run, WeighingMode};
-    use assize_ledger::{Record, Timestamp};
+    use crate::records::{Run, WeighingMode};
+    use crate::test_records::{at, balance, entry, h, reading, run_record};
+    use assize_ledger::Record;
 
     // Invented balances, run and readings; times in seconds after 2026-11-16T08:00:00Z (20_773
     // days after 1970-01-01, Gregorian leap-year rule of RFC 3339 Appendix C, plus 8 h).
-
-    fn h(tag: &str) -> EntryHash {
-        EntryHash::digest(tag.as_bytes())
-    }
-
-    fn at(seconds: i64) -> Timestamp {
-        Timestamp((20_773 * 86_400 + 8 * 3600 + seconds) * 1_000_000)
-    }
-
-    fn reading(text: &str) -> Reading {
-        Reading::parse_with_unit(text).unwrap()
-    }
-
-    fn entry(seq: u64, tag: &str, kind: &str, body: LabBody) -> CatalogEntry {
-        CatalogEntry {
-            seq,
-            hash: h(tag),
-            kind: kind.into(),
-            author: "analyst.a".into(),
-            record_time: at(3_600 + seq as i64),
-            signed: true,
-            body,
-        }
-    }
-
-    fn balance(seq: u64, id: &str) -> CatalogEntry {
-        let body = Balance {
-            id: id.into(),
-            description: "analytical balance (invented)".into(),
-            readability: reading("0.0001 g"),
-            capacity: reading("220 g"),
-            minimum_weight: reading("0.0820 g"),
-        };
-        entry(seq, id, Balance::KIND, LabBody::Balance(body))
-    }
 
     /// A titrant weighing of RUN-1 by difference.
     fn titrant(
@@ -345,17 +310,7 @@ mod tests {
     /// CAP-01 messages for a run whose policy is not in the catalog (default tolerance
     /// 120 s) holding these weighings.
     fn cap_01(weighings: Vec<CatalogEntry>) -> Vec<String> {
-        let run = Run {
-            id: "RUN-1".into(),
-            kind: RunKind::Standardization,
-            method: h("method"),
-            policy: h("policy"),
-            titrant: h("titrant"),
-            reference_lot: Some(h("lot")),
-            sample: None,
-            standardization: None,
-            started_at: at(0),
-        };
+        let run = run_record("RUN-1", "policy");
         let mut entries = vec![
             balance(1, "BAL-A"),
             balance(2, "BAL-B"),
