@@ -112,8 +112,8 @@ fn check_bundle(cli: &Cli, args: &EvidenceCheckArgs) -> Result<Outcome, Failure>
             view.note,
             view.ledger_id,
             view.checkpoint_seq,
-            &view.checkpoint_head[..16],
-            &view.tree_root[..16],
+            short(&view.checkpoint_head),
+            short(&view.tree_root),
             view.signed_by,
             view.signed_at,
             view.entries,
@@ -122,6 +122,11 @@ fn check_bundle(cli: &Cli, args: &EvidenceCheckArgs) -> Result<Outcome, Failure>
         )
     })?;
     Ok(Outcome::Clean)
+}
+
+/// The first 16 hex digits of a hash, for people.
+fn short(hex: &str) -> &str {
+    hex.get(..16).unwrap_or(hex)
 }
 
 fn failure(e: EvidenceError) -> Failure {
