@@ -8,23 +8,8 @@
 
 mod common;
 
-use common::assize_binary;
+use common::assize;
 use std::path::Path;
-use std::process::Command;
-
-fn assize(dir: &Path, args: &[&str]) -> String {
-    let out = Command::new(assize_binary())
-        .current_dir(dir)
-        .args(args)
-        .output()
-        .expect("run assize");
-    assert!(
-        out.status.success(),
-        "assize {args:?} failed: {}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8(out.stdout).expect("utf-8 output")
-}
 
 fn number(value: &serde_json::Value) -> f64 {
     match value {

@@ -111,6 +111,7 @@ pub fn run_assize(dir: &Path, args: &[&str]) -> Output {
         .expect("run assize")
 }
 
+/// Runs `assize` like [`run_assize`] and returns its stdout, failing the test unless it succeeds.
 pub fn assize(dir: &Path, args: &[&str]) -> String {
     let out = run_assize(dir, args);
     assert!(
@@ -121,6 +122,7 @@ pub fn assize(dir: &Path, args: &[&str]) -> String {
     String::from_utf8(out.stdout).expect("utf-8 output")
 }
 
+/// Parses `--json` output.
 pub fn json(text: &str) -> serde_json::Value {
     serde_json::from_str(text).expect("JSON output")
 }
