@@ -25,6 +25,50 @@ fn drawing_error(e: impl std::fmt::Display) -> String {
     format!("cannot draw a chart: {e}")
 }
 
+/// The frame of a chart over numbered items 1..=`count` (x) and values `lo..hi` (y): axes,
+/// labels on the items only, light grid off. Shared by the control chart and the scatter.
+fn numbered_frame<'a, DB: DrawingBackend + 'a>(
+    root: &DrawingArea<DB, plotters::coord::Shift>,
+    count: i32,
+    (lo, hi): (f64, f64),
+    x_desc: &str,
+    y_desc: &str,
+) -> Result<
+    ChartContext<
+        'a,
+        DB,
+        Cartesian2d<plotters::coord::types::RangedCoordi32, plotters::coord::types::RangedCoordf64>,
+    >,
+    String,
+> {
+    let mut chart = ChartBuilder::on(root)
+        .margin(12)
+        .x_label_area_size(40)
+        .y_label_area_size(84)
+        .build_cartesian_2d(0..count + 1, lo..hi)
+        .map_err(drawing_error)?;
+    chart
+        .configure_mesh()
+        .x_labels((count + 2) as usize)
+        .x_label_formatter(&|x| {
+            if (1..=count).contains(x) {
+                x.to_string()
+            } else {
+                String::new()
+            }
+        })
+        .y_labels(6)
+        .y_label_formatter(&|y| tick(*y, hi - lo))
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .axis_desc_style((FONT, 13))
+        .label_style((FONT, 12))
+        .light_line_style(WHITE)
+        .draw()
+        .map_err(drawing_error)?;
+    Ok(chart)
+}
+
 /// SVG as it goes inside the page.
 fn inline(svg: String) -> String {
     svg.replacen(" xmlns=\"http://www.w3.org/2000/svg\"", "", 1)
@@ -150,31 +194,13 @@ pub fn control_chart(c: &ControlChart) -> Result<Option<String>, String> {
     {
         let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
         root.fill(&WHITE).map_err(drawing_error)?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(12)
-            .x_label_area_size(40)
-            .y_label_area_size(84)
-            .build_cartesian_2d(0..n + 1, lo..hi)
-            .map_err(drawing_error)?;
-        chart
-            .configure_mesh()
-            .x_labels((n + 2) as usize)
-            .x_label_formatter(&|x| {
-                if (1..=n).contains(x) {
-                    x.to_string()
-                } else {
-                    String::new()
-                }
-            })
-            .y_labels(6)
-            .y_label_formatter(&|y| tick(*y, hi - lo))
-            .x_desc("standardization, in ledger order (see the table)")
-            .y_desc(format!("mean / {unit}"))
-            .axis_desc_style((FONT, 13))
-            .label_style((FONT, 12))
-            .light_line_style(WHITE)
-            .draw()
-            .map_err(drawing_error)?;
+        let mut chart = numbered_frame(
+            &root,
+            n,
+            (lo, hi),
+            "standardization, in ledger order (see the table)",
+            &format!("mean / {unit}"),
+        )?;
         if let Some(l) = &c.limits {
             let across = |y: f64| vec![(0, y), (n + 1, y)];
             chart
@@ -231,31 +257,13 @@ pub fn replicate_scatter(r: &ReplicateChart) -> Result<Option<String>, String> {
     {
         let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
         root.fill(&WHITE).map_err(drawing_error)?;
-        let mut chart = ChartBuilder::on(&root)
-            .margin(12)
-            .x_label_area_size(40)
-            .y_label_area_size(84)
-            .build_cartesian_2d(0..last + 1, lo..hi)
-            .map_err(drawing_error)?;
-        chart
-            .configure_mesh()
-            .x_labels((last + 2) as usize)
-            .x_label_formatter(&|x| {
-                if (1..=last).contains(x) {
-                    x.to_string()
-                } else {
-                    String::new()
-                }
-            })
-            .y_labels(6)
-            .y_label_formatter(&|y| tick(*y, hi - lo))
-            .x_desc("replicate")
-            .y_desc(format!("value / {unit}"))
-            .axis_desc_style((FONT, 13))
-            .label_style((FONT, 12))
-            .light_line_style(WHITE)
-            .draw()
-            .map_err(drawing_error)?;
+        let mut chart = numbered_frame(
+            &root,
+            last,
+            (lo, hi),
+            "replicate",
+            &format!("value / {unit}"),
+        )?;
         if let Some(mean) = r.mean {
             chart
                 .draw_series(LineSeries::new(
