@@ -191,10 +191,11 @@ impl Catalog {
     /// file is read once for both. The catalog is only as trustworthy as the report says.
     ///
     /// The replay's walk hands each entry it is done with, in batches, to one thread that
-    /// decodes them into the catalog in order, so decoding does not lengthen the walk. That
-    /// thread takes the place of one signature thread when `options.threads` is 0 (one per
-    /// core): the walk, not signature checking, limits a replay of lab entries (each reference
-    /// is looked up), so a plain replay does not keep every signature thread busy either.
+    /// decodes them into the catalog in order, so decoding does not lengthen the walk. The
+    /// replay keeps its signature threads (one per core when `options.threads` is 0) and the
+    /// decoder shares the cores with them: checking signatures is most of a replay's work, and
+    /// one signature thread fewer would leave it to a single core while the walk and the
+    /// decoder do not fill the other.
     pub fn from_replay(
         ledger: &Ledger,
         options: &ReplayOptions,
@@ -211,13 +212,6 @@ impl Catalog {
     ) -> Result<(IntegrityReport, Catalog), LedgerError> {
         let stored = ledger.store().head()?.map_or(0, |head| head.seq);
         let mut catalog = Catalog::with_capacity(reserve_for(stored));
-        let options = ReplayOptions {
-            threads: match options.threads {
-                0 => available_cores().saturating_sub(1).max(1),
-                n => n,
-            },
-            ..options.clone()
-        };
         let (sender, receiver) = sync_channel::<Vec<Entry>>(HANDOFFS_WAITING);
         std::thread::scope(|scope| {
             let decoder = scope.spawn(move || {
@@ -229,7 +223,7 @@ impl Catalog {
                 catalog
             });
             let mut pending = Vec::with_capacity(ENTRIES_PER_HANDOFF);
-            let report = ledger.replay_observed(&options, &mut |entry| {
+            let report = ledger.replay_observed(options, &mut |entry| {
                 let seq = entry.seq;
                 pending.push(entry);
                 if pending.len() == ENTRIES_PER_HANDOFF {
@@ -455,11 +449,6 @@ impl Catalog {
     pub fn defects(&self) -> &[Defect] {
         &self.defects
     }
-}
-
-/// Cores this process may use.
-fn available_cores() -> usize {
-    std::thread::available_parallelism().map_or(1, |n| n.get())
 }
 
 /// Room to reserve for a ledger of `stored` entries (most of a lab's are lab entries).

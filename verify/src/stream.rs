@@ -20,6 +20,11 @@
 //! readings reused across runs (`PAT-02`, compared within the most recent
 //! `fingerprint_horizon` weighings). Memory is bounded by the window, the horizon and the
 //! tables of balances and documents, not by the number of entries.
+//!
+//! The judging thread shares the cores with the replay's walk and all of its signature
+//! threads (one per core, as in a plain replay). Checking signatures is most of the work: with
+//! one signature thread fewer, that thread alone would set the pace while the walk and the
+//! judge left part of the other core idle.
 
 use crate::assemble::{DocumentMemory, Recomputer};
 use crate::catalog::{Catalog, CatalogEntry, Defect, LabBody};
@@ -46,6 +51,9 @@ type Shared = Arc<CatalogEntry>;
 
 /// Entries the replay hands over at a time.
 const ENTRIES_PER_HANDOFF: usize = 256;
+
+/// Room a run's bucket starts with: a run with three replicates has about a dozen entries.
+const ENTRIES_PER_RUN: usize = 16;
 /// Hand-offs that may wait for the judging thread.
 const HANDOFFS_WAITING: usize = 8;
 /// Standardizations kept after they were judged, for the assays that rely on them.
@@ -90,16 +98,6 @@ pub fn validate_streaming(
     progress: &mut dyn FnMut(u64),
 ) -> Result<Validation, ValidateError> {
     let store = Store::open(ledger.store().path(), OpenMode::ReadOnly)?;
-    let options = ReplayOptions {
-        threads: match options.threads {
-            0 => std::thread::available_parallelism()
-                .map_or(1, |n| n.get())
-                .saturating_sub(1)
-                .max(1),
-            n => n,
-        },
-        ..options.clone()
-    };
     let (sender, receiver) = sync_channel::<Vec<Entry>>(HANDOFFS_WAITING);
     let (report, judged) = std::thread::scope(|threads| {
         let judge = threads.spawn(move || {
@@ -112,7 +110,7 @@ pub fn validate_streaming(
             state.finish()
         });
         let mut pending = Vec::with_capacity(ENTRIES_PER_HANDOFF);
-        let report = ledger.replay_observed(&options, &mut |entry| {
+        let report = ledger.replay_observed(options, &mut |entry| {
             let seq = entry.seq;
             pending.push(entry);
             if pending.len() == ENTRIES_PER_HANDOFF {
@@ -470,14 +468,12 @@ impl Stream {
                         m.last_used = self.walked;
                     }
                 }
-                self.owner.insert(entry.hash, entry.seq);
-                self.buckets.insert(
-                    entry.seq,
-                    Bucket {
-                        run: entry.hash,
-                        entries: vec![entry],
-                    },
-                );
+                let entry_seq = entry.seq;
+                self.owner.insert(entry.hash, entry_seq);
+                let run = entry.hash;
+                let mut entries = Vec::with_capacity(ENTRIES_PER_RUN);
+                entries.push(entry);
+                self.buckets.insert(entry_seq, Bucket { run, entries });
                 return Ok(());
             }
             LabBody::Correction(c) => c.supersedes,
@@ -1521,12 +1517,6 @@ fn current_body<'a>(entries: &'a [Shared], hash: &EntryHash) -> Option<Cow<'a, L
 /// as a 64-bit key with fixed hashing, so runs compare the same way on every machine.
 fn fingerprint_key(w: &Weighing) -> u64 {
     let mut hasher = std::collections::hash_map::DefaultHasher::new();
-    (
-        w.balance,
-        &w.first.value,
-        &w.second.value,
-        w.first.unit.to_string(),
-    )
-        .hash(&mut hasher);
+    (w.balance, &w.first.value, &w.second.value, w.first.unit).hash(&mut hasher);
     hasher.finish()
 }

@@ -57,14 +57,14 @@ pub struct Adopted {
 pub struct RunView<'a> {
     /// The run entry.
     pub entry: &'a CatalogEntry,
-    /// The run record in force.
-    pub run: Run,
+    /// The run record in force (borrowed from the catalog unless corrected).
+    pub run: Cow<'a, Run>,
     /// The adopted method it names, if that parses.
     pub method: Option<Arc<Adopted>>,
     /// The adopted policy it names, if that parses.
     pub policy: Option<Arc<Adopted>>,
     /// The sample entry and record (assays).
-    pub sample: Option<(&'a CatalogEntry, Sample)>,
+    pub sample: Option<(&'a CatalogEntry, Cow<'a, Sample>)>,
     /// Entries that belong to the run, in sequence order.
     pub entries: Vec<&'a CatalogEntry>,
     /// The recomputed outcome, or why it cannot be recomputed.
@@ -173,15 +173,12 @@ impl<'a> Evidence<'a> {
             recomputed.into_iter().collect();
         let mut runs = Vec::new();
         for entry in catalog.of_kind(Run::KIND) {
-            let LabBody::Run(run) = catalog.current_of(entry).into_owned() else {
+            let Some(run) = run_record(catalog.current_of(entry)) else {
                 continue;
             };
             let sample = run.sample.and_then(|hash| {
                 let entry = catalog.entry(&hash)?;
-                match catalog.current_of(entry).into_owned() {
-                    LabBody::Sample(s) => Some((entry, s)),
-                    _ => None,
-                }
+                Some((entry, sample_record(catalog.current_of(entry))?))
             });
             let recomputed = results
                 .remove(&entry.hash)
@@ -353,6 +350,24 @@ pub fn adopted_documents(catalog: &Catalog) -> HashMap<EntryHash, Arc<Adopted>> 
         );
     }
     adopted
+}
+
+/// The run record in a body, borrowed when the body is.
+fn run_record(body: Cow<'_, LabBody>) -> Option<Cow<'_, Run>> {
+    match body {
+        Cow::Borrowed(LabBody::Run(run)) => Some(Cow::Borrowed(run)),
+        Cow::Owned(LabBody::Run(run)) => Some(Cow::Owned(run)),
+        _ => None,
+    }
+}
+
+/// The sample record in a body, borrowed when the body is.
+fn sample_record(body: Cow<'_, LabBody>) -> Option<Cow<'_, Sample>> {
+    match body {
+        Cow::Borrowed(LabBody::Sample(sample)) => Some(Cow::Borrowed(sample)),
+        Cow::Owned(LabBody::Sample(sample)) => Some(Cow::Owned(sample)),
+        _ => None,
+    }
 }
 
 /// A reference to a catalog entry.

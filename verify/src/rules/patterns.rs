@@ -32,30 +32,37 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
             continue;
         }
         let weighings = weighings_of(evidence.catalog, run);
-        // Identical readings between different replicates of the run.
-        let mut within: HashMap<(Portion, FingerprintRef<'_>), Vec<(&CatalogEntry, u32)>> =
-            HashMap::new();
-        for (entry, w) in &weighings {
-            within
-                .entry((w.portion, fingerprint(w)))
-                .or_default()
-                .push((entry, w.replicate));
-            if across_runs {
+        if across_runs {
+            for (entry, w) in &weighings {
                 let (balance, first, second, unit) = fingerprint(w);
                 seen.entry((balance, first.to_string(), second.to_string(), unit))
                     .or_default()
                     .push((index, entry, w.portion));
             }
         }
-        let mut groups: Vec<Vec<(&CatalogEntry, u32)>> = within
-            .into_values()
-            .filter(|list| {
-                let mut replicates: Vec<u32> = list.iter().map(|(_, r)| *r).collect();
-                replicates.sort_unstable();
-                replicates.dedup();
-                replicates.len() > 1
-            })
+        // Identical readings between different replicates of the run: a run has a few
+        // weighings, so each is compared with the rest rather than filed in a table.
+        let keys: Vec<(Portion, FingerprintRef<'_>)> = weighings
+            .iter()
+            .map(|(_, w)| (w.portion, fingerprint(w)))
             .collect();
+        let mut groups: Vec<Vec<(&CatalogEntry, u32)>> = Vec::new();
+        for (first, key) in keys.iter().enumerate() {
+            if keys[..first].contains(key) {
+                continue;
+            }
+            let alike = || (first..keys.len()).filter(|&other| keys[other] == *key);
+            let replicate_of = |at: usize| weighings[at].1.replicate;
+            let starting = replicate_of(first);
+            if alike().all(|other| replicate_of(other) == starting) {
+                continue;
+            }
+            groups.push(
+                alike()
+                    .map(|at| (weighings[at].0, replicate_of(at)))
+                    .collect(),
+            );
+        }
         groups.sort_by_key(|g| g[0].0.seq);
         for group in groups {
             let numbers: Vec<String> = group.iter().map(|(_, r)| r.to_string()).collect();

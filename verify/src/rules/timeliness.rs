@@ -10,7 +10,6 @@ use crate::findings::{Code, Finding};
 use crate::records::{BalanceCheck, Source};
 use assize_ledger::Record;
 use assize_ledger::Timestamp;
-use foldhash::{HashMap, HashMapExt};
 
 const MINUTE_MICROS: i64 = 60_000_000;
 
@@ -43,17 +42,21 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
     for run in evidence.judged_runs() {
         let Some(policy) = run.policy() else { continue };
         let window = policy.records.contemporaneous_window_minutes;
-        let clause = format!(
-            "{}: records.contemporaneous_window_minutes = {window}",
-            run.policy_label()
-        );
-        let mut stamps: HashMap<Timestamp, Vec<&CatalogEntry>> = HashMap::new();
+        let clause = || {
+            format!(
+                "{}: records.contemporaneous_window_minutes = {window}",
+                run.policy_label()
+            )
+        };
+        // Every time stamp of a reading typed by a person, in the order the run's entries
+        // give them (sorted below, stably, so each stamp's entries keep that order).
+        let mut stamps: Vec<(Timestamp, &CatalogEntry)> = Vec::new();
         for entry in &run.entries {
             let body = catalog.current_of(entry);
             if let Some(observed) = keyed_observation(&body) {
                 if let Some(message) = late(entry, observed, window) {
                     out.push(
-                        run.finding(Finding::new(Code::LateEntry, message, clause.clone()))
+                        run.finding(Finding::new(Code::LateEntry, message, clause()))
                             .involving([entry_ref(entry)]),
                     );
                 }
@@ -62,24 +65,26 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
                 // A captured twin repeats the time of the keyed reading it is the original
                 // of; only readings typed by a person can be back-filled.
                 LabBody::Weighing(w) if w.source == Source::Keyed => {
-                    stamps.entry(w.first_at).or_default().push(entry);
-                    stamps.entry(w.second_at).or_default().push(entry);
+                    stamps.push((w.first_at, entry));
+                    stamps.push((w.second_at, entry));
                 }
-                LabBody::Titration(t) => stamps.entry(t.read_at).or_default().push(entry),
+                LabBody::Titration(t) => stamps.push((t.read_at, entry)),
                 _ => {}
             }
         }
+        stamps.sort_by_key(|(at, _)| *at);
         let most = policy.records.max_readings_per_timestamp as usize;
-        let mut crowded: Vec<(Timestamp, Vec<&CatalogEntry>)> =
-            stamps.into_iter().filter(|(_, e)| e.len() > most).collect();
-        crowded.sort_by_key(|(at, _)| *at);
-        for (at, entries) in crowded {
+        for group in stamps.chunk_by(|a, b| a.0 == b.0) {
+            if group.len() <= most {
+                continue;
+            }
+            let at = group[0].0;
             out.push(
                 run.finding(Finding::new(
                     Code::SharedTimestamp,
                     format!(
                         "{} readings of run {} are all timed {}",
-                        entries.len(),
+                        group.len(),
                         run.id(),
                         when(at)
                     ),
@@ -88,7 +93,7 @@ pub fn check(evidence: &Evidence<'_>, out: &mut Vec<Finding>) {
                         run.policy_label()
                     ),
                 ))
-                .involving(entries.into_iter().map(entry_ref)),
+                .involving(group.iter().map(|(_, entry)| entry_ref(entry))),
             );
         }
     }
