@@ -81,6 +81,7 @@ fn hint_for(e: &LedgerError) -> &'static str {
         ClockBehind { .. } => "nothing was written; correct the system clock (UTC) before recording",
         UnknownReference { .. } => "refer only to entries already in this ledger (`assize entries list`)",
         NoSuchEntry { .. } => "`assize entries list` shows the sequence numbers in use",
+        HeadMoved { .. } => "nothing was written; someone recorded at the same time, so run the command again",
         TreeNotBuilt { .. } => {
             "open the ledger for writing once (any command that records, e.g. `assize note`) to build its tree, then try again"
         }

@@ -102,6 +102,14 @@ pub enum LedgerError {
         /// The sequence number asked for.
         seq: u64,
     },
+    /// Another writer appended after the caller prepared its entries from the ledger as it
+    /// stood (see [`crate::Ledger::append_batch_after`]); nothing was appended.
+    HeadMoved {
+        /// The last entry the caller prepared against (0: an empty ledger).
+        expected_seq: u64,
+        /// The last entry found under the write lock.
+        found_seq: u64,
+    },
     /// The ledger file predates the merkle tree (schema version 1) and was opened read-only,
     /// so its tree has not been built yet.
     TreeNotBuilt {
@@ -142,6 +150,13 @@ impl std::fmt::Display for LedgerError {
             ),
             UnknownReference { hash } => write!(f, "referenced entry {hash} is not in the ledger"),
             NoSuchEntry { seq } => write!(f, "no entry with sequence number {seq}"),
+            HeadMoved {
+                expected_seq,
+                found_seq,
+            } => write!(
+                f,
+                "the ledger changed while this was prepared: its last entry was {expected_seq}, and is now {found_seq}"
+            ),
             TreeNotBuilt { path } => write!(
                 f,
                 "{} has no merkle tree yet (schema version 1): open it read-write once, for example with any append, to build it",

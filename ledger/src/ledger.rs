@@ -166,6 +166,38 @@ impl Ledger {
         &mut self,
         count: usize,
         signer: Option<&Signer>,
+        build: F,
+    ) -> Result<Vec<Entry>>
+    where
+        F: FnMut(usize, &[Entry]) -> Result<Draft>,
+    {
+        self.append_batch_checked(None, count, signer, build)
+    }
+
+    /// Like [`Ledger::append_batch`], for drafts prepared from the ledger as it stood when its
+    /// last entry was `prepared_at` (`None`: empty): refused with
+    /// [`LedgerError::HeadMoved`], appending nothing, when another writer has appended since.
+    /// The head is compared under the write lock, so nothing can be appended between the
+    /// comparison and the batch.
+    pub fn append_batch_after<F>(
+        &mut self,
+        prepared_at: Option<&Head>,
+        count: usize,
+        signer: Option<&Signer>,
+        build: F,
+    ) -> Result<Vec<Entry>>
+    where
+        F: FnMut(usize, &[Entry]) -> Result<Draft>,
+    {
+        let expected = prepared_at.map(|head| (head.seq, head.hash));
+        self.append_batch_checked(Some(expected), count, signer, build)
+    }
+
+    fn append_batch_checked<F>(
+        &mut self,
+        expected: Option<Option<(u64, EntryHash)>>,
+        count: usize,
+        signer: Option<&Signer>,
         mut build: F,
     ) -> Result<Vec<Entry>>
     where
@@ -173,6 +205,15 @@ impl Ledger {
     {
         let tx = self.store.begin_append()?;
         let mut head = tx.head()?;
+        if let Some(expected) = expected {
+            let found = head.as_ref().map(|h| (h.seq, h.hash));
+            if found != expected {
+                return Err(LedgerError::HeadMoved {
+                    expected_seq: expected.map_or(0, |(seq, _)| seq),
+                    found_seq: found.map_or(0, |(seq, _)| seq),
+                });
+            }
+        }
         // Changed inside the batch on a copy, kept only once the batch commits.
         let mut frontier = self.tree_frontier.clone();
         if head != self.synced_head {

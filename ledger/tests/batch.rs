@@ -2,7 +2,9 @@
 
 use assize_ledger::records::{Enrolment, Note};
 use assize_ledger::replay::ReplayOptions;
-use assize_ledger::{Draft, FixedClock, KindRules, Ledger, LedgerError, Role, Signer, Timestamp};
+use assize_ledger::{
+    Draft, FixedClock, KindRules, Ledger, LedgerError, OpenMode, Role, Signer, Timestamp,
+};
 use std::sync::Arc;
 
 fn fixture() -> (tempfile::TempDir, Ledger, Signer) {
@@ -104,4 +106,47 @@ fn a_refused_item_leaves_nothing_of_the_batch() {
     let report = ledger.replay(&ReplayOptions::default()).expect("replay");
     assert!(report.intact(), "{:#?}", report.problems);
     assert_eq!(report.entries, 10);
+}
+
+#[test]
+fn a_batch_prepared_before_another_writer_appended_is_refused_whole() {
+    let (dir, mut ledger, qa) = fixture();
+    let prepared_at = ledger.head().expect("head");
+    // Another handle on the same file appends after the batch was prepared (its clock a
+    // little later than the fixture's, as a second process's would be).
+    let later = Arc::new(FixedClock::new(Timestamp(1_800_000_000_100_000), 1_000));
+    let mut other = Ledger::open(
+        &dir.path().join("batch.ledger"),
+        OpenMode::ReadWrite,
+        KindRules::core(),
+        later,
+    )
+    .expect("second handle");
+    other
+        .append(note("q.ambrose", "written in between"), Some(&qa))
+        .expect("append");
+    let result = ledger.append_batch_after(prepared_at.as_ref(), 2, Some(&qa), |i, _| {
+        Ok(note("q.ambrose", &format!("prepared item {i}")))
+    });
+    assert!(
+        matches!(
+            result,
+            Err(LedgerError::HeadMoved {
+                expected_seq: 1,
+                found_seq: 2
+            })
+        ),
+        "{result:?}"
+    );
+    assert_eq!(ledger.head().expect("head").expect("opened").seq, 2);
+    // Prepared against the head as it stands, the batch goes in whole.
+    let now = other.head().expect("head");
+    let entries = other
+        .append_batch_after(now.as_ref(), 2, Some(&qa), |i, _| {
+            Ok(note("q.ambrose", &format!("prepared again {i}")))
+        })
+        .expect("batch appends");
+    assert_eq!(entries.iter().map(|e| e.seq).collect::<Vec<_>>(), [3, 4]);
+    let report = other.replay(&ReplayOptions::default()).expect("replay");
+    assert!(report.intact(), "{:#?}", report.problems);
 }

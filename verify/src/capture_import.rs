@@ -395,13 +395,17 @@ pub fn plan(
 }
 
 /// Plans the import against the ledger as it stands and appends every captured weighing,
-/// signed by `signer`, in one transaction: all of them or none.
+/// signed by `signer`, in one transaction: all of them or none. Refused
+/// ([`LedgerError::HeadMoved`]) when someone appended while the plan was made, since the
+/// plan's check that no weighing is captured yet may no longer hold.
 pub fn record(
     ledger: &mut Ledger,
     signer: &Signer,
     printout: &[PrintedReading],
     run_id: &str,
 ) -> Result<(CapturePlan, Vec<Entry>), CaptureError> {
+    // The head before the read: if anything is appended after it, the batch is refused.
+    let planned_at = ledger.head()?;
     let catalog = Catalog::load(ledger.store())?;
     let plan = plan(&catalog, printout, run_id)?;
     if plan.pairings.is_empty() {
@@ -412,7 +416,10 @@ pub fn record(
         });
     }
     let drafts = plan.drafts(signer.person())?;
-    let entries = ledger.append_batch(drafts.len(), Some(signer), |i, _| Ok(drafts[i].clone()))?;
+    let entries =
+        ledger.append_batch_after(planned_at.as_ref(), drafts.len(), Some(signer), |i, _| {
+            Ok(drafts[i].clone())
+        })?;
     Ok((plan, entries))
 }
 

@@ -235,28 +235,36 @@ impl Batch {
 }
 
 /// Records `inputs` signed by `signer`, in one transaction: all of them or none. Ids resolve
-/// against the ledger's lab entries and against the earlier inputs of the same call.
+/// against the ledger's lab entries and against the earlier inputs of the same call. Refused
+/// ([`LedgerError::HeadMoved`]) when someone appended while the ledger was read, since an id
+/// found free (or a reference resolved) then may no longer be.
 pub fn record(
     ledger: &mut Ledger,
     signer: &Signer,
     inputs: &[Input],
 ) -> Result<Vec<Entry>, LedgerError> {
+    let read_at = ledger.head()?;
     let mut catalog = Catalog::load(ledger.store())?;
     let author = signer.person().to_string();
-    ledger.append_batch(inputs.len(), Some(signer), |i, earlier| {
-        if let Some(previous) = earlier.last() {
-            catalog.add(previous);
-        }
-        draft(&inputs[i], &catalog, &author).map_err(|reason| LedgerError::BadInput {
-            what: format!(
-                "record {} of {} ({})",
-                i + 1,
-                inputs.len(),
-                inputs[i].kind()
-            ),
-            reason,
-        })
-    })
+    ledger.append_batch_after(
+        read_at.as_ref(),
+        inputs.len(),
+        Some(signer),
+        |i, earlier| {
+            if let Some(previous) = earlier.last() {
+                catalog.add(previous);
+            }
+            draft(&inputs[i], &catalog, &author).map_err(|reason| LedgerError::BadInput {
+                what: format!(
+                    "record {} of {} ({})",
+                    i + 1,
+                    inputs.len(),
+                    inputs[i].kind()
+                ),
+                reason,
+            })
+        },
+    )
 }
 
 /// Parses an RFC 3339 time with its offset, e.g. `2026-11-03T09:15:00Z`.

@@ -90,10 +90,13 @@ pub fn correct(cli: &Cli, args: &CorrectArgs) -> Result<Outcome, Failure> {
         .ok_or_else(|| Failure::new("no key file given", "pass --key FILE (or set ASSIZE_KEY)"))?;
     let mut ledger = open_ledger(cli, OpenMode::ReadWrite)?;
     let original = ledger.entry(args.seq)?.hash;
-    let catalog = Catalog::load(ledger.store())?;
     let signer = unlock(cli, &key)?;
+    // The correction is drafted from the version in force at this head; if anyone appends
+    // meanwhile (another correction, say), it is refused and nothing is written.
+    let read_at = ledger.head()?;
+    let catalog = Catalog::load(ledger.store())?;
     let author = signer.person().to_string();
-    let entry = ledger.append_batch(1, Some(&signer), |_, _| {
+    let entry = ledger.append_batch_after(read_at.as_ref(), 1, Some(&signer), |_, _| {
         correction_draft(&catalog, original, &fields, &args.reason, &author).map_err(|reason| {
             LedgerError::BadInput {
                 what: format!("correction of entry {}", args.seq),
