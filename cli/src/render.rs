@@ -335,7 +335,7 @@ fn outcome_text(o: &assize_verify::recompute::Outcome) -> String {
     ]);
     for t in &b.contributions {
         budget.add_row(vec![
-            t.name.clone(),
+            t.name.to_string(),
             format!("{:.6}", t.value),
             format!("{:.2e}", t.standard_uncertainty),
             format!("{:.2e}", t.relative_uncertainty),

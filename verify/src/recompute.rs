@@ -22,6 +22,7 @@ use crate::uncertainty::{evaluate, Budget, CoverageRule, ProductModel, Term};
 use rust_decimal::prelude::ToPrimitive;
 use rust_decimal::Decimal;
 use serde::Serialize;
+use std::sync::Arc;
 
 /// What a balance contributes to the uncertainty of a net mass.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -400,7 +401,7 @@ fn assay_terms(
 
 fn plain(name: &str, value: f64, u: f64, exponent: f64) -> Term {
     Term {
-        name: name.to_string(),
+        name: Arc::from(name),
         value,
         standard_uncertainty: u,
         exponent,
@@ -505,7 +506,7 @@ fn repeatability_of(name: &str, values: &[ReplicateValue]) -> Term {
         _ => 0.0,
     };
     Term {
-        name: format!("{name} (n = {})", v.len()),
+        name: Arc::from(format!("{name} (n = {})", v.len())),
         value: 1.0,
         standard_uncertainty: relative,
         exponent: 1.0,
@@ -729,7 +730,7 @@ mod tests {
             .budget
             .contributions
             .iter()
-            .map(|c| c.name.as_str())
+            .map(|c| &*c.name)
             .collect();
         assert!(names.iter().any(|n| n.contains("balance B2")), "{names:?}");
         assert!(names.iter().any(|n| n.contains("balance B3")), "{names:?}");

@@ -12,6 +12,7 @@
 
 use std::collections::BTreeMap;
 use std::fmt;
+use std::sync::Arc;
 
 use crate::stats::{self, StatsError};
 
@@ -19,7 +20,7 @@ use crate::stats::{self, StatsError};
 #[derive(Debug, Clone, PartialEq)]
 pub struct Term {
     /// Name shown in the budget (unique within a model), e.g. `m_KHP`.
-    pub name: String,
+    pub name: Arc<str>,
     /// Estimate of the input, in its own unit.
     pub value: f64,
     /// Standard uncertainty of the estimate, same unit as `value`.
@@ -30,14 +31,14 @@ pub struct Term {
     pub degrees_of_freedom: Option<f64>,
     /// Terms sharing a group are one fully correlated physical error appearing several times;
     /// members must agree in value, standard uncertainty and degrees of freedom.
-    pub correlation_group: Option<String>,
+    pub correlation_group: Option<Arc<str>>,
 }
 
 impl Term {
     /// An uncorrelated Type B term (infinite degrees of freedom).
     pub fn new(name: &str, value: f64, standard_uncertainty: f64, exponent: f64) -> Term {
         Term {
-            name: name.to_string(),
+            name: Arc::from(name),
             value,
             standard_uncertainty,
             exponent,
@@ -65,7 +66,7 @@ impl Term {
 
     /// The same term as a member of correlation group `group`.
     pub fn in_correlation_group(mut self, group: &str) -> Term {
-        self.correlation_group = Some(group.to_string());
+        self.correlation_group = Some(Arc::from(group));
         self
     }
 }
@@ -96,9 +97,9 @@ pub enum CoverageRule {
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct Contribution {
     /// The term's name, or the correlation group's name.
-    pub name: String,
+    pub name: Arc<str>,
     /// Names of the model terms this line stands for, sorted (one for an uncorrelated term).
-    pub members: Vec<String>,
+    pub members: Vec<Arc<str>>,
     /// Estimate of the input.
     pub value: f64,
     /// Standard uncertainty of the input.
@@ -138,7 +139,7 @@ pub struct Budget {
     /// Expanded uncertainty `U = k · u_c`.
     pub expanded_uncertainty: f64,
     /// Correlation groups whose exponents sum to zero and which therefore cancel, sorted.
-    pub cancelled: Vec<String>,
+    pub cancelled: Vec<Arc<str>>,
 }
 
 /// Why a budget could not be evaluated.
@@ -330,7 +331,9 @@ const CANCELLATION_TOLERANCE: f64 = 1e-12;
 
 /// One budget line before the model value is known: an uncorrelated term or a whole group.
 struct Source<'a> {
-    members: Vec<&'a str>,
+    /// The line's name: the term's, or its correlation group's.
+    name: &'a Arc<str>,
+    members: Vec<&'a Arc<str>>,
     value: f64,
     standard_uncertainty: f64,
     exponent: f64,
@@ -363,8 +366,8 @@ pub fn evaluate(model: &ProductModel, rule: CoverageRule) -> Result<Budget, Unce
     let value = model_value(model.constant, &sources)?;
 
     let mut contributions: Vec<Contribution> = sources
-        .iter()
-        .map(|(name, source)| contribution_line(name, source, value))
+        .values()
+        .map(|source| contribution_line(source, value))
         .collect();
     contributions.sort_by(|a, b| {
         b.contribution
@@ -391,9 +394,9 @@ pub fn evaluate(model: &ProductModel, rule: CoverageRule) -> Result<Budget, Unce
     let (coverage_factor, coverage_probability) =
         coverage_factor(rule, effective_degrees_of_freedom)?;
     let cancelled = sources
-        .iter()
-        .filter(|(_, source)| source.is_cancelled())
-        .map(|(name, _)| name.to_string())
+        .values()
+        .filter(|source| source.is_cancelled())
+        .map(|source| Arc::clone(source.name))
         .collect();
 
     Ok(Budget {
@@ -455,7 +458,7 @@ fn validate_constant(constant: f64) -> Result<(), UncertaintyError> {
 
 fn validate_term(index: usize, term: &Term) -> Result<(), UncertaintyError> {
     use UncertaintyError as E;
-    let name = || term.name.clone();
+    let name = || term.name.to_string();
     if term.name.is_empty() {
         return Err(E::EmptyTermName { index });
     }
@@ -506,7 +509,7 @@ fn validate_term(index: usize, term: &Term) -> Result<(), UncertaintyError> {
 fn check_unique_names(terms: &[&Term]) -> Result<(), UncertaintyError> {
     match terms.windows(2).find(|pair| pair[0].name == pair[1].name) {
         Some(pair) => Err(UncertaintyError::DuplicateTermName {
-            term: pair[0].name.clone(),
+            term: pair[0].name.to_string(),
         }),
         None => Ok(()),
     }
@@ -519,15 +522,16 @@ fn collect_sources<'a>(
     let is_ungrouped_name = |name: &str| {
         // `terms` are sorted by name.
         terms
-            .binary_search_by(|term| term.name.as_str().cmp(name))
+            .binary_search_by(|term| term.name.as_ref().cmp(name))
             .is_ok_and(|at| terms[at].correlation_group.is_none())
     };
     let mut sources: BTreeMap<&'a str, Source<'a>> = BTreeMap::new();
     for term in terms {
-        let Some(group) = term.correlation_group.as_deref() else {
-            sources.insert(term.name.as_str(), source_of(term, false));
+        let Some(group_name) = term.correlation_group.as_ref() else {
+            sources.insert(&term.name, source_of(&term.name, term, false));
             continue;
         };
+        let group: &str = group_name;
         if is_ungrouped_name(group) {
             return Err(UncertaintyError::CorrelationGroupNameClash {
                 group: group.to_string(),
@@ -535,22 +539,23 @@ fn collect_sources<'a>(
         }
         match sources.get_mut(group) {
             None => {
-                sources.insert(group, source_of(term, true));
+                sources.insert(group, source_of(group_name, term, true));
             }
             Some(source) => {
                 check_same_error(group, source, term)?;
                 source.exponent += term.exponent;
                 source.absolute_exponents += term.exponent.abs();
-                source.members.push(term.name.as_str());
+                source.members.push(&term.name);
             }
         }
     }
     Ok(sources)
 }
 
-fn source_of(term: &Term, grouped: bool) -> Source<'_> {
+fn source_of<'a>(name: &'a Arc<str>, term: &'a Term, grouped: bool) -> Source<'a> {
     Source {
-        members: vec![term.name.as_str()],
+        name,
+        members: vec![&term.name],
         value: term.value,
         standard_uncertainty: term.standard_uncertainty,
         exponent: term.exponent,
@@ -581,7 +586,7 @@ fn check_same_error(group: &str, source: &Source, term: &Term) -> Result<(), Unc
             return Err(UncertaintyError::CorrelationGroupMismatch {
                 group: group.to_string(),
                 first_term: source.members[0].to_string(),
-                term: term.name.clone(),
+                term: term.name.to_string(),
                 quantity,
                 first,
                 found,
@@ -606,7 +611,7 @@ fn model_value(constant: f64, sources: &BTreeMap<&str, Source>) -> Result<f64, U
     }
 }
 
-fn contribution_line(name: &str, source: &Source, model_value: f64) -> Contribution {
+fn contribution_line(source: &Source, model_value: f64) -> Contribution {
     let exponent = if source.is_cancelled() {
         0.0
     } else {
@@ -614,11 +619,11 @@ fn contribution_line(name: &str, source: &Source, model_value: f64) -> Contribut
     };
     let sensitivity = exponent * model_value / source.value;
     Contribution {
-        name: name.to_string(),
+        name: Arc::clone(source.name),
         members: source
             .members
             .iter()
-            .map(|member| member.to_string())
+            .map(|member| Arc::clone(member))
             .collect(),
         value: source.value,
         standard_uncertainty: source.standard_uncertainty,
@@ -668,11 +673,15 @@ mod tests {
         assert_close(actual, expected, relative * expected.abs(), what);
     }
 
+    fn names(list: &[Arc<str>]) -> Vec<&str> {
+        list.iter().map(|name| &**name).collect()
+    }
+
     fn line<'a>(budget: &'a Budget, name: &str) -> &'a Contribution {
         budget
             .contributions
             .iter()
-            .find(|line| line.name == name)
+            .find(|line| &*line.name == name)
             .unwrap_or_else(|| panic!("no budget line named {name}"))
     }
 
@@ -781,7 +790,7 @@ mod tests {
         let ranked: Vec<&str> = budget
             .contributions
             .iter()
-            .map(|line| line.name.as_str())
+            .map(|line| &*line.name)
             .collect();
         assert_eq!(ranked, ["V_T", "R", "m_KHP", "P_KHP", "M_KHP"]);
         assert!(budget.cancelled.is_empty());
@@ -870,9 +879,9 @@ mod tests {
         let same = evaluate(&standardization_then_assay(true), CoverageRule::Fixed(2.0)).unwrap();
         // common practice (REFERENCES §7) [cp]: one balance weighing the titrant in both steps
         // cancels; GUM 5.2.2 with r = +1 [pub]: the exponents −1 and +1 add to 0
-        assert_eq!(same.cancelled, ["balance T1 sensitivity"]);
+        assert_eq!(names(&same.cancelled), ["balance T1 sensitivity"]);
         let group = line(&same, "balance T1 sensitivity");
-        assert_eq!(group.members, ["s_T_assay", "s_T_std"]);
+        assert_eq!(names(&group.members), ["s_T_assay", "s_T_std"]);
         assert_eq!(group.exponent, 0.0);
         assert_eq!(group.sensitivity, 0.0);
         assert_eq!(group.contribution, 0.0);
@@ -1165,7 +1174,7 @@ mod tests {
             1e-15,
             "u_c/y",
         );
-        assert_eq!(with_exact.contributions.last().unwrap().name, "F");
+        assert_eq!(&*with_exact.contributions.last().unwrap().name, "F");
     }
 
     #[test]
@@ -1192,11 +1201,7 @@ mod tests {
             ],
         };
         let budget = evaluate(&model, CoverageRule::Fixed(2.0)).unwrap();
-        let names: Vec<&str> = budget
-            .contributions
-            .iter()
-            .map(|l| l.name.as_str())
-            .collect();
+        let names: Vec<&str> = budget.contributions.iter().map(|l| &*l.name).collect();
         assert_eq!(names, ["a", "b", "c"]);
     }
 

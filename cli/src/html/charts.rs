@@ -134,7 +134,7 @@ pub fn budget_bars(d: &Dossier) -> Result<Option<String>, String> {
             .map_err(drawing_error)?;
         let name_of = |v: &SegmentValue<i32>| match v {
             SegmentValue::CenterOf(row) if (0..n).contains(row) => {
-                lines[(n - 1 - row) as usize].name.clone()
+                lines[(n - 1 - row) as usize].name.to_string()
             }
             _ => String::new(),
         };
