@@ -51,7 +51,6 @@ type Shared = Arc<CatalogEntry>;
 
 /// Entries the replay hands over at a time.
 const ENTRIES_PER_HANDOFF: usize = 256;
-
 /// Room a run's bucket starts with: a run with three replicates has about a dozen entries.
 const ENTRIES_PER_RUN: usize = 16;
 /// Hand-offs that may wait for the judging thread.
