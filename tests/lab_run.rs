@@ -8,7 +8,7 @@
 
 mod common;
 
-use common::assize;
+use common::{assize, lab_with_the_sample_week};
 use std::path::Path;
 
 fn number(value: &serde_json::Value) -> f64 {
@@ -35,109 +35,7 @@ fn a_run_entered_through_the_cli_recomputes_to_plain_arithmetic() {
     let dir = tempfile::tempdir().expect("temp dir");
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
     let d = dir.path();
-    std::fs::write(d.join("pass.txt"), "lab run passphrase\n").expect("passphrase file");
-    let p = ["--passphrase-file", "pass.txt"];
-    for (person, file) in [("q.halden", "qa.key"), ("t.rasmilov", "analyst.key")] {
-        assize(
-            d,
-            &[
-                &p[..],
-                &[
-                    "key",
-                    "new",
-                    "--person",
-                    person,
-                    "--out",
-                    file,
-                    "--kdf-memory-mib",
-                    "8",
-                ],
-            ]
-            .concat(),
-        );
-    }
-    let ledger = ["--ledger", "lab.ledger", "--passphrase-file", "pass.txt"];
-    assize(
-        d,
-        &[
-            &ledger[..],
-            &[
-                "create",
-                "--lab",
-                "Lab Run Test Laboratory",
-                "--name",
-                "Quentin Halden",
-                "--key",
-                "qa.key",
-            ],
-        ]
-        .concat(),
-    );
-    assize(
-        d,
-        &[
-            &ledger[..],
-            &[
-                "person",
-                "enrol",
-                "--id",
-                "t.rasmilov",
-                "--name",
-                "Teodor Rasmilov",
-                "--role",
-                "analyst",
-                "--from-key-file",
-                "analyst.key",
-                "--key",
-                "qa.key",
-            ],
-        ]
-        .concat(),
-    );
-    let method = root.join("policies/permanganate-peroxide.toml");
-    let policy = root.join("policies/lab-policy.toml");
-    let batch = root.join("samples/lab/permanganate-week-48.toml");
-    assize(
-        d,
-        &[
-            &ledger[..],
-            &[
-                "adopt",
-                "--method",
-                method.to_str().expect("path"),
-                "--key",
-                "qa.key",
-            ],
-        ]
-        .concat(),
-    );
-    assize(
-        d,
-        &[
-            &ledger[..],
-            &[
-                "adopt",
-                "--policy",
-                policy.to_str().expect("path"),
-                "--key",
-                "qa.key",
-            ],
-        ]
-        .concat(),
-    );
-    assize(
-        d,
-        &[
-            &ledger[..],
-            &[
-                "import",
-                batch.to_str().expect("path"),
-                "--key",
-                "analyst.key",
-            ],
-        ]
-        .concat(),
-    );
+    lab_with_the_sample_week(d, root);
     let json = assize(
         d,
         &[
