@@ -20,41 +20,23 @@ fn a_bundle_checks_and_explains_without_the_ledger_and_a_changed_byte_is_refused
         d,
         &["--json", "--ledger", "lab.ledger", "explain", RUN],
     ));
-    let written = json(&assize(
-        d,
-        &[
-            "--json",
-            "--ledger",
-            "lab.ledger",
-            "--passphrase-file",
-            "pass.txt",
-            "evidence",
-            "export",
-            RUN,
-            "--out",
-            "result.bundle",
-            "--key",
-            "qa.key",
-        ],
-    ));
+    let export = [
+        "--ledger",
+        "lab.ledger",
+        "--passphrase-file",
+        "pass.txt",
+        "evidence",
+        "export",
+        RUN,
+        "--out",
+        "result.bundle",
+        "--key",
+        "qa.key",
+    ];
+    let written = json(&assize(d, &[&["--json"][..], &export].concat()));
     assert_eq!(written["run"], RUN);
     // A second export to the same file is refused (bundles are not overwritten silently).
-    let again = run_assize(
-        d,
-        &[
-            "--ledger",
-            "lab.ledger",
-            "--passphrase-file",
-            "pass.txt",
-            "evidence",
-            "export",
-            RUN,
-            "--out",
-            "result.bundle",
-            "--key",
-            "qa.key",
-        ],
-    );
+    let again = run_assize(d, &export);
     assert_eq!(again.status.code(), Some(4));
 
     // Without the ledger.

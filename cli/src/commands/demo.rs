@@ -304,10 +304,7 @@ fn timeline(scenario: &Scenario) -> Result<Vec<Timed>, Failure> {
     for (index, table) in scenario.step.iter().enumerate() {
         let origin = format!("{SCENARIO_PATH}, step {}", index + 1);
         let mut table = table.clone();
-        let at = match table.remove("at") {
-            Some(toml::Value::String(text)) => time("at", &text)?,
-            _ => return Err(bug(format!("{origin} has no `at` time"))),
-        };
+        let at = take_time(&mut table, "at", &origin)?;
         let step: Step = toml::Value::Table(table)
             .try_into()
             .map_err(|e| bug(format!("{origin}: {e}")))?;
@@ -322,6 +319,14 @@ fn timeline(scenario: &Scenario) -> Result<Vec<Timed>, Failure> {
     }
     timeline.sort_by_key(|timed| timed.at);
     Ok(timeline)
+}
+
+/// Removes the time `field` from a step or record table of `origin` and reads it.
+fn take_time(table: &mut toml::Table, field: &str, origin: &str) -> Result<Timestamp, Failure> {
+    match table.remove(field) {
+        Some(toml::Value::String(text)) => time(field, &text),
+        _ => Err(bug(format!("{origin} has no `{field}` time"))),
+    }
 }
 
 /// The records of one bench sheet: `by` (who enters them) and `[[record]]` tables in the batch
@@ -346,10 +351,7 @@ fn sheet(path: &str) -> Result<Vec<Timed>, Failure> {
         let toml::Value::Table(mut record) = record else {
             return Err(bug(format!("{origin} is not a table")));
         };
-        let at = match record.remove("entered_at") {
-            Some(toml::Value::String(text)) => time("entered_at", &text)?,
-            _ => return Err(bug(format!("{origin} has no `entered_at` time"))),
-        };
+        let at = take_time(&mut record, "entered_at", &origin)?;
         let input: Input = toml::Value::Table(record)
             .try_into()
             .map_err(|e| bug(format!("{origin}: {e}")))?;
